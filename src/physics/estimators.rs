@@ -1,0 +1,450 @@
+//! Peculiar velocities from a redshift and a redshift-independent distance.
+//!
+//! The exact route: the distance and the cosmology give the cosmological redshift z_cos;
+//! the CMB-frame redshift and z_cos give the peculiar redshift by composition,
+//! 1 + z_pec = (1 + z_cmb)/(1 + z_cos); the relativistic Doppler formula turns z_pec into a
+//! radial velocity. Two approximate estimators are kept for comparison only: the low-redshift
+//! difference c z − H0 d, and the estimator of Watkins & Feldman (2015).
+//!
+//! # Luminosity-distance conventions
+//! A measured luminosity distance (or distance modulus) of a moving source seen by a moving
+//! observer is not the FLRW D_L at any one redshift. Three conventions are offered:
+//!
+//! * `observed`: D_L = (1 + z_helio) D_M(z_cos) — the usual choice in SN Ia Hubble diagrams
+//!   (e.g. Davis et al. 2011, ApJ 741, 67; Carr et al. 2022, PASA 39, 46).
+//! * `cosmological`: D_L = (1 + z_cos) D_M(z_cos) — the FLRW relation at z_cos, as in older
+//!   distance catalogues.
+//! * `full`: D_L = (1 + z_helio)(1 + z_cmb) D_M(z_cos)/(1 + z_cos), i.e.
+//!   D_L = D̄_L(z_cos) (1 + z_pec)² (1 + z_obs-motion) with 1 + z_obs-motion =
+//!   (1 + z_helio)/(1 + z_cmb). Derivation: the angular-diameter distance of a source does not
+//!   depend on the source's radial velocity (the light bundle converging on the observer
+//!   is fixed by the geometry), so in the CMB frame D_A = D_M(z_cos)/(1 + z_cos); the
+//!   observer's own motion aberrates solid angles by the Doppler factor squared, so
+//!   D_A,⊙ = D_A (1 + z_cmb)/(1 + z_helio); Etherington's reciprocity (Etherington 1933,
+//!   Phil. Mag. 15, 761), D_L = (1 + z)² D_A with the observed z_helio, gives the form above.
+//!   For the source's motion this is the (1 + z_pec)² factor of Hui & Greene (2006),
+//!   astro-ph/0512159, and Davis et al. (2011).
+
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+use super::constants::C_KM_S;
+use super::cosmology::{luminosity_distance_of, Cosmology};
+use super::redshift::{
+    doppler_velocity_derivative, doppler_velocity_of, peculiar_part, Cmb, Cosmological,
+    Heliocentric, Redshift,
+};
+use super::PhysicsError;
+
+const LN10: f64 = std::f64::consts::LN_10;
+
+/// How a luminosity distance relates to the redshifts of a moving source (see module docs).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema, Default)]
+#[serde(rename_all = "kebab-case")]
+pub enum DlConvention {
+    /// D_L = (1 + z_helio) D_M(z_cos).
+    #[default]
+    Observed,
+    /// D_L = (1 + z_cos) D_M(z_cos).
+    Cosmological,
+    /// D_L = (1 + z_helio)(1 + z_cmb) D_M(z_cos)/(1 + z_cos).
+    Full,
+}
+
+impl DlConvention {
+    /// Stable name, as written in outputs.
+    pub fn name(self) -> &'static str {
+        match self {
+            DlConvention::Observed => "observed",
+            DlConvention::Cosmological => "cosmological",
+            DlConvention::Full => "full",
+        }
+    }
+}
+
+/// The kind of redshift-independent distance a catalogue gives.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum DistanceKind {
+    /// Distance modulus μ, mag.
+    Mu,
+    /// Luminosity distance, Mpc.
+    Dl,
+    /// Line-of-sight comoving distance, Mpc.
+    Dc,
+    /// Log-distance ratio η = log10(D_C(z_cmb)/D_C(z_cos)).
+    Eta,
+}
+
+impl DistanceKind {
+    /// Stable name (also the default column name).
+    pub fn name(self) -> &'static str {
+        match self {
+            DistanceKind::Mu => "mu",
+            DistanceKind::Dl => "dl",
+            DistanceKind::Dc => "dc",
+            DistanceKind::Eta => "eta",
+        }
+    }
+}
+
+/// A measured distance with its 1σ error (0 when unknown).
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Distance {
+    pub kind: DistanceKind,
+    /// μ in mag, D in Mpc, or η.
+    pub value: f64,
+    /// 1σ error in the same unit; 0 when not given.
+    pub error: f64,
+}
+
+/// Everything the estimator needs besides the cosmology.
+#[derive(Debug, Clone, Copy)]
+pub struct Observation {
+    pub z_helio: Redshift<Heliocentric>,
+    pub z_cmb: Redshift<Cmb>,
+    /// 1σ error of z_helio (0 when unknown).
+    pub z_err: f64,
+    pub distance: Distance,
+}
+
+/// Options that shape the estimate.
+#[derive(Debug, Clone, Copy, Default)]
+pub struct EstimatorOptions {
+    pub convention: DlConvention,
+    /// Intrinsic velocity dispersion σ_* (km/s) added in quadrature to the velocity error.
+    pub sigma_star_km_s: f64,
+}
+
+/// The result for one object.
+#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+pub struct PeculiarVelocity {
+    pub z_cos: f64,
+    pub z_cos_err: f64,
+    pub z_pec: f64,
+    /// Radial peculiar velocity, km/s (relativistic Doppler of z_pec).
+    pub v_pec: f64,
+    /// 1σ, first order, including σ_* when given.
+    pub v_pec_err: f64,
+    /// Comoving distance at z_cos, Mpc.
+    pub d_c: f64,
+    /// Luminosity distance implied by the input, Mpc (as measured: μ or D_L; for D_C and η
+    /// inputs, the FLRW (1 + z_cos) D_M(z_cos)).
+    pub d_l: f64,
+    /// log10(D_C(z_cmb)/D_C(z_cos)).
+    pub eta: f64,
+    pub eta_err: f64,
+}
+
+/// Solve for z_cos and the partial derivatives ∂z_cos/∂q (q the distance value),
+/// ∂z_cos/∂z_helio and ∂z_cos/∂z_cmb at fixed other arguments.
+struct CosmologicalSolution {
+    z_cos: f64,
+    dz_dq: f64,
+    dz_dzh: f64,
+    dz_dzc: f64,
+    /// Luminosity distance in play, Mpc.
+    d_l: f64,
+}
+
+fn solve_cosmological(
+    cosmo: &Cosmology,
+    obs: &Observation,
+    convention: DlConvention,
+) -> Result<CosmologicalSolution, PhysicsError> {
+    let d = obs.distance;
+    if !d.value.is_finite() {
+        return Err(PhysicsError::NotFinite {
+            quantity: "distance",
+            value: d.value,
+        });
+    }
+    let zh1 = obs.z_helio.one_plus();
+    let zc1 = obs.z_cmb.one_plus();
+    let d_h = cosmo.hubble_distance();
+    // dD_M/dz at z (through D_C).
+    let dm_and_slope = |z: f64| -> Result<(f64, f64), PhysicsError> {
+        let dc = cosmo.comoving_distance(z)?;
+        let dm = cosmo.transverse_from_comoving(dc);
+        let ddm_ddc = cosmo.transverse_derivative(dc);
+        Ok((dm, ddm_ddc * d_h / cosmo.efunc(z)))
+    };
+    // Luminosity-type inputs: D_L and dD_L/dq.
+    let (d_l, dl_dq) = match d.kind {
+        DistanceKind::Mu => {
+            let dl = luminosity_distance_of(d.value);
+            (dl, dl * LN10 / 5.0)
+        }
+        DistanceKind::Dl => {
+            if d.value <= 0.0 {
+                return Err(PhysicsError::NotPositive {
+                    quantity: "luminosity distance",
+                    value: d.value,
+                });
+            }
+            (d.value, 1.0)
+        }
+        _ => (f64::NAN, f64::NAN),
+    };
+    match d.kind {
+        DistanceKind::Mu | DistanceKind::Dl => match convention {
+            DlConvention::Cosmological => {
+                let z = cosmo.z_from_luminosity(d_l)?;
+                let (dm, dm_z) = dm_and_slope(z)?;
+                let g_z = dm + (1.0 + z) * dm_z;
+                Ok(CosmologicalSolution {
+                    z_cos: z,
+                    dz_dq: dl_dq / g_z,
+                    dz_dzh: 0.0,
+                    dz_dzc: 0.0,
+                    d_l,
+                })
+            }
+            DlConvention::Observed => {
+                let target = d_l / zh1;
+                let z = cosmo.z_from_transverse(target)?;
+                let (_, dm_z) = dm_and_slope(z)?;
+                Ok(CosmologicalSolution {
+                    z_cos: z,
+                    dz_dq: dl_dq / zh1 / dm_z,
+                    dz_dzh: -target / zh1 / dm_z,
+                    dz_dzc: 0.0,
+                    d_l,
+                })
+            }
+            DlConvention::Full => {
+                let target = d_l / (zh1 * zc1);
+                let z = cosmo.z_from_angular_diameter(target)?;
+                let (dm, dm_z) = dm_and_slope(z)?;
+                let g_z = -dm / ((1.0 + z) * (1.0 + z)) + dm_z / (1.0 + z);
+                Ok(CosmologicalSolution {
+                    z_cos: z,
+                    dz_dq: dl_dq / (zh1 * zc1) / g_z,
+                    dz_dzh: -target / zh1 / g_z,
+                    dz_dzc: -target / zc1 / g_z,
+                    d_l,
+                })
+            }
+        },
+        DistanceKind::Dc => {
+            let z = cosmo.z_from_comoving(d.value)?;
+            let g_z = d_h / cosmo.efunc(z);
+            Ok(CosmologicalSolution {
+                z_cos: z,
+                dz_dq: 1.0 / g_z,
+                dz_dzh: 0.0,
+                dz_dzc: 0.0,
+                d_l: cosmo.luminosity_distance(z)?,
+            })
+        }
+        DistanceKind::Eta => {
+            let zc = obs.z_cmb.value();
+            let dc_obs = cosmo.comoving_distance(zc)?;
+            let ratio = 10f64.powf(-d.value);
+            let target = dc_obs * ratio;
+            let z = cosmo.z_from_comoving(target)?;
+            let g_z = d_h / cosmo.efunc(z);
+            Ok(CosmologicalSolution {
+                z_cos: z,
+                dz_dq: -target * LN10 / g_z,
+                dz_dzh: 0.0,
+                dz_dzc: ratio * d_h / cosmo.efunc(zc) / g_z,
+                d_l: cosmo.luminosity_distance(z)?,
+            })
+        }
+    }
+}
+
+/// The exact peculiar velocity of one object, with first-order errors.
+///
+/// Errors: σ_v² = (∂v/∂z_helio σ_z)² + (∂v/∂q σ_q)² + σ_*², the derivatives taken through
+/// the boost (z_cmb depends on z_helio), the distance inversion (z_cos depends on the
+/// distance and, in the `observed` and `full` conventions and for η, on the redshifts) and
+/// the composition and Doppler laws.
+pub fn peculiar_velocity(
+    cosmo: &Cosmology,
+    obs: &Observation,
+    options: &EstimatorOptions,
+) -> Result<PeculiarVelocity, PhysicsError> {
+    let sol = solve_cosmological(cosmo, obs, options.convention)?;
+    let z_cos = Redshift::<Cosmological>::new(sol.z_cos)?;
+    let z_pec = peculiar_part(obs.z_cmb, z_cos).value();
+    let v_pec = doppler_velocity_of(z_pec);
+
+    let zc1 = obs.z_cmb.one_plus();
+    let zcos1 = z_cos.one_plus();
+    // dz_cmb/dz_helio: the boost is linear in 1 + z.
+    let k = zc1 / obs.z_helio.one_plus();
+    let dzcos_dzh = sol.dz_dzh + sol.dz_dzc * k;
+    let dzp_dzh = k / zcos1 - zc1 / (zcos1 * zcos1) * dzcos_dzh;
+    let dzp_dq = -zc1 / (zcos1 * zcos1) * sol.dz_dq;
+    let dv = doppler_velocity_derivative(z_pec);
+    let var_v = (dv * dzp_dzh * obs.z_err).powi(2) + (dv * dzp_dq * obs.distance.error).powi(2);
+    let v_pec_err = (var_v + options.sigma_star_km_s.powi(2)).sqrt();
+
+    let d_c = cosmo.comoving_distance(sol.z_cos)?;
+    let dc_obs = cosmo.comoving_distance(obs.z_cmb.value().max(0.0))?;
+    let eta = if obs.distance.kind == DistanceKind::Eta {
+        obs.distance.value
+    } else {
+        (dc_obs / d_c).log10()
+    };
+    let dc_z = cosmo.comoving_distance_derivative(sol.z_cos);
+    let dcobs_z = cosmo.comoving_distance_derivative(obs.z_cmb.value());
+    let deta_dzh = (dcobs_z / dc_obs * k - dc_z / d_c * dzcos_dzh) / LN10;
+    let deta_dq = -dc_z / d_c * sol.dz_dq / LN10;
+    let eta_err = ((deta_dzh * obs.z_err).powi(2) + (deta_dq * obs.distance.error).powi(2)).sqrt();
+    let z_cos_err =
+        ((dzcos_dzh * obs.z_err).powi(2) + (sol.dz_dq * obs.distance.error).powi(2)).sqrt();
+    Ok(PeculiarVelocity {
+        z_cos: sol.z_cos,
+        z_cos_err,
+        z_pec,
+        v_pec,
+        v_pec_err,
+        d_c,
+        d_l: sol.d_l,
+        eta,
+        eta_err,
+    })
+}
+
+/// The low-redshift estimator v = c z_cmb − H0 d, with d the luminosity distance in play.
+/// For comparison only: it takes H0 d for c z_cos and drops the 1/(1 + z_cos) factor of the
+/// composition law.
+pub fn low_redshift_velocity(h0: f64, z_cmb: Redshift<Cmb>, d_mpc: f64) -> f64 {
+    C_KM_S * z_cmb.value() - h0 * d_mpc
+}
+
+/// The estimator of Watkins & Feldman (2015), MNRAS 450, 1868 (arXiv:1411.6665):
+/// v = c z_mod/(1 + z_mod) · ln(c z_mod / (H0 d)), with
+/// z_mod = z [1 + ½(1 − q0) z − ⅙(1 − q0 − 3q0² + j0) z²], z the CMB-frame redshift and
+/// d the luminosity distance (the bracket is the third-order expansion of H0 D_L/c, Visser
+/// 2004, CQG 21, 2603). The exact form is from memory of the paper; it is offered for
+/// comparison, never used for the main results.
+pub fn watkins_feldman_velocity(cosmo: &Cosmology, z_cmb: Redshift<Cmb>, d_l_mpc: f64) -> f64 {
+    let (q0, j0) = cosmo.params().deceleration_jerk();
+    let z = z_cmb.value();
+    let z_mod = z * (1.0 + 0.5 * (1.0 - q0) * z - (1.0 - q0 - 3.0 * q0 * q0 + j0) * z * z / 6.0);
+    let cz = C_KM_S * z_mod;
+    cz / (1.0 + z_mod) * (cz / (cosmo.params().h0 * d_l_mpc)).ln()
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::physics::cosmology::CosmologyParams;
+    use crate::physics::redshift::{compose_cmb, doppler_redshift};
+
+    fn cosmo() -> Cosmology {
+        Cosmology::new(CosmologyParams::flat_lcdm(70.0, 0.3)).unwrap()
+    }
+
+    /// Forward-model a galaxy and recover its velocity exactly, in each convention.
+    #[test]
+    fn exact_round_trip_each_convention() {
+        let c = cosmo();
+        for conv in [
+            DlConvention::Observed,
+            DlConvention::Cosmological,
+            DlConvention::Full,
+        ] {
+            for (zcos, v) in [(0.01, 300.0), (0.1, -800.0), (0.8, 1200.0)] {
+                let zc = compose_cmb(Redshift::new(zcos).unwrap(), doppler_redshift(v).unwrap());
+                // Pretend the observer is at rest in the CMB frame except for a small motion.
+                let zh = Redshift::<Heliocentric>::new(zc.value() - 0.001).unwrap();
+                let dm = c.transverse_comoving_distance(zcos).unwrap();
+                let dl = match conv {
+                    DlConvention::Observed => zh.one_plus() * dm,
+                    DlConvention::Cosmological => (1.0 + zcos) * dm,
+                    DlConvention::Full => zh.one_plus() * zc.one_plus() * dm / (1.0 + zcos),
+                };
+                let obs = Observation {
+                    z_helio: zh,
+                    z_cmb: zc,
+                    z_err: 0.0,
+                    distance: Distance {
+                        kind: DistanceKind::Dl,
+                        value: dl,
+                        error: 0.0,
+                    },
+                };
+                let opts = EstimatorOptions {
+                    convention: conv,
+                    sigma_star_km_s: 0.0,
+                };
+                let pv = peculiar_velocity(&c, &obs, &opts).unwrap();
+                assert!(
+                    (pv.v_pec - v).abs() < 1e-6,
+                    "{conv:?} {zcos}: {} vs {v}",
+                    pv.v_pec
+                );
+            }
+        }
+    }
+
+    /// Analytic first-order errors against finite differences of the full calculation.
+    #[test]
+    fn errors_match_finite_differences() {
+        let c = cosmo();
+        for conv in [
+            DlConvention::Observed,
+            DlConvention::Cosmological,
+            DlConvention::Full,
+        ] {
+            for kind in [DistanceKind::Mu, DistanceKind::Dc, DistanceKind::Eta] {
+                let value = match kind {
+                    DistanceKind::Mu => 36.2,
+                    DistanceKind::Dc => 170.0,
+                    DistanceKind::Eta => 0.03,
+                    DistanceKind::Dl => unreachable!(),
+                };
+                let zh = 0.041;
+                let k = 1.0012; // (1 + z_cmb)/(1 + z_helio), a fixed boost
+                let make = |zh: f64, q: f64| Observation {
+                    z_helio: Redshift::new(zh).unwrap(),
+                    z_cmb: Redshift::new((1.0 + zh) * k - 1.0).unwrap(),
+                    z_err: 0.0,
+                    distance: Distance {
+                        kind,
+                        value: q,
+                        error: 0.0,
+                    },
+                };
+                let opts = EstimatorOptions {
+                    convention: conv,
+                    sigma_star_km_s: 0.0,
+                };
+                let v = |zh: f64, q: f64| peculiar_velocity(&c, &make(zh, q), &opts).unwrap().v_pec;
+                let (hz, hq) = (1e-7, value * 1e-7);
+                let dvdz = (v(zh + hz, value) - v(zh - hz, value)) / (2.0 * hz);
+                let dvdq = (v(zh, value + hq) - v(zh, value - hq)) / (2.0 * hq);
+                let (sz, sq) = (1.5e-4, 0.02 * value.abs());
+                let expect = ((dvdz * sz).powi(2) + (dvdq * sq).powi(2)).sqrt();
+                let mut obs = make(zh, value);
+                obs.z_err = sz;
+                obs.distance.error = sq;
+                let got = peculiar_velocity(&c, &obs, &opts).unwrap().v_pec_err;
+                assert!(
+                    (got - expect).abs() / expect < 1e-5,
+                    "{conv:?} {kind:?}: {got} vs {expect}"
+                );
+            }
+        }
+    }
+
+    /// A galaxy at rest: the Watkins–Feldman estimator, whose z_mod reproduces H0 D_L/c to
+    /// third order (Visser 2004), gives ≈ 0 at z = 0.05; c z − H0 D_L is strongly negative
+    /// there (D_L > c z/H0 for q0 < 1).
+    #[test]
+    fn watkins_feldman_near_zero_for_galaxy_at_rest() {
+        let c = cosmo();
+        let z = 0.05;
+        let dl = c.luminosity_distance(z).unwrap();
+        let v = watkins_feldman_velocity(&c, Redshift::new(z).unwrap(), dl);
+        // The expansion is third order, so the residual is tiny at z = 0.05.
+        assert!(v.abs() < 5.0, "{v}");
+        let naive = low_redshift_velocity(70.0, Redshift::new(z).unwrap(), dl);
+        assert!(naive < -200.0, "{naive}");
+    }
+}

@@ -1,0 +1,16 @@
+//! Pure physics: sky frames, rest frames, redshift algebra, cosmological distances and
+//! peculiar-velocity estimators.
+//!
+//! Everything here is a function over plain numbers (wrapped in frame-tagged newtypes where a
+//! mix-up would be a bug). Nothing in this module reads files, prints or exits; the catalogue
+//! edges and the command line sit outside it.
+
+pub mod constants;
+pub mod cosmology;
+pub mod error;
+pub mod estimators;
+pub mod redshift;
+pub mod restframe;
+pub mod sky;
+
+pub use error::PhysicsError;
