@@ -46,4 +46,7 @@
 //! ## Layout (data flow)
 //! * [`physics`] — pure functions: sky frames, rest frames, redshifts, cosmology, estimators.
 
+pub mod catalogue;
+pub mod mock;
 pub mod physics;
+pub mod settings;

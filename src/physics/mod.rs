@@ -9,6 +9,7 @@ pub mod constants;
 pub mod cosmology;
 pub mod error;
 pub mod estimators;
+pub mod object;
 pub mod redshift;
 pub mod restframe;
 pub mod sky;

@@ -26,12 +26,34 @@
 use std::marker::PhantomData;
 
 use nalgebra::Vector3;
-use serde::Serialize;
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
 
 use super::constants::C_KM_S;
 use super::redshift::{Cmb, GalacticRest, Heliocentric, LocalGroup, Lsr, Redshift, RedshiftKind};
 use super::sky::{Direction, Galactic};
 use super::PhysicsError;
+
+/// How heliocentric redshifts are moved to the CMB frame.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum BoostMethod {
+    /// 1 + z_cmb = (1 + z_helio) / [γ (1 − β·n̂)], exact.
+    #[default]
+    Exact,
+    /// c z_cmb = c z_helio + v cos θ — legacy, for reproducing older catalogues only.
+    LegacyAdditive,
+}
+
+impl BoostMethod {
+    /// Stable name, as written in outputs.
+    pub fn name(self) -> &'static str {
+        match self {
+            BoostMethod::Exact => "exact",
+            BoostMethod::LegacyAdditive => "legacy-additive",
+        }
+    }
+}
 
 /// Frames defined by the Sun's velocity relative to them (everything but heliocentric).
 pub trait ObserverRestFrame: RedshiftKind {}
@@ -147,7 +169,14 @@ pub fn apex_table() -> Vec<Apex> {
             369.82,
             264.021,
             48.253,
-            "Planck Collaboration I (2020), A&A 641, A1: 369.82 ± 0.11 km/s towards l = 264.021° ± 0.011°, b = 48.253° ± 0.005°",
+            "Planck Collaboration I (2020), A&A 641, A1: towards l = 264.021° ± 0.011°, b = 48.253° ± 0.005°; speed 369.82 ± 0.11 km/s (speed and errors from memory of the paper, direction confirmed)",
+        ),
+        cmb(
+            "planck2013",
+            369.0,
+            263.99,
+            48.26,
+            "Planck Collaboration XXVII (2014), A&A 571, A27, §1: 369 ± 0.9 km/s towards l = 263.99° ± 0.14°, b = 48.26° ± 0.03° (from Kogut et al. 1993; Fixsen et al. 1996; Hinshaw et al. 2009)",
         ),
         cmb(
             "cobe-firas",
@@ -161,7 +190,7 @@ pub fn apex_table() -> Vec<Apex> {
             306.0,
             99.0,
             -4.0,
-            "Courteau & van den Bergh (1999), AJ 118, 337: Sun relative to the Local Group barycentre, 306 ± 18 km/s towards l = 99° ± 5°, b = −4° ± 4°",
+            "Courteau & van den Bergh (1999), AJ 118, 337 (journal reference from memory): Sun relative to the Local Group barycentre, 306 ± 18 km/s towards l = 99° ± 5°, b = −4° ± 4°",
         ),
         lg(
             "yahil1977",
@@ -188,7 +217,7 @@ pub fn apex_table() -> Vec<Apex> {
             "schoenrich2010",
             Lsr::NAME,
             SOLAR_MOTION_UVW,
-            "Schönrich, Binney & Dehnen (2010), MNRAS 403, 1829: (U, V, W) = (11.1, 12.24, 7.25) km/s",
+            "Schönrich, Binney & Dehnen (2010), MNRAS 403, 1829 (arXiv:0912.3693): (U, V, W) = (11.1, 12.24, 7.25) km/s",
         ),
         Apex::from_uvw(
             "schoenrich2010-eilers2019",

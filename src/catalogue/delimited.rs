@@ -1,0 +1,41 @@
+//! CSV and TSV through polars.
+
+use std::fs::File;
+use std::path::Path;
+
+use polars::prelude::*;
+
+use super::{CatalogueError, Table};
+
+/// Read a delimited file with a header line. Lines starting with '#' are comments. Types are
+/// inferred from the whole file, so a column with one non-numeric entry is read as text and
+/// each entry is then checked by the pipeline (giving a per-row status, not a failure).
+pub fn read_delimited(path: &Path, separator: u8) -> Result<Table, CatalogueError> {
+    let options = CsvReadOptions::default()
+        .with_has_header(true)
+        .with_infer_schema_length(None)
+        .map_parse_options(|p| {
+            p.with_separator(separator)
+                .with_comment_prefix(Some("#"))
+                .with_missing_is_null(true)
+                .with_null_values(Some(NullValues::AllColumns(vec!["".into(), "NA".into(), "null".into()])))
+        });
+    let frame = options
+        .try_into_reader_with_file_path(Some(path.to_path_buf()))
+        .and_then(|r| r.finish())
+        .map_err(|e| CatalogueError::read(path, format!("cannot read as delimited text: {e}")))?;
+    Ok(Table {
+        frame,
+        meta: Default::default(),
+    })
+}
+
+/// Write a delimited file with a header line; floats at full precision.
+pub fn write_delimited(file: &File, table: &Table, separator: u8) -> Result<(), String> {
+    let mut df = table.frame.clone();
+    CsvWriter::new(file)
+        .include_header(true)
+        .with_separator(separator)
+        .finish(&mut df)
+        .map_err(|e| format!("cannot write delimited text: {e}"))
+}

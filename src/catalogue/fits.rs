@@ -1,0 +1,1 @@
+//! FITS binary tables (placeholder: being written).

@@ -1,0 +1,226 @@
+//! Catalogue edges: reading FITS, CSV/TSV and Parquet tables into columns, and writing them
+//! back with units, UCDs and provenance. Nothing here does physics.
+
+pub mod fits;
+
+use std::collections::BTreeMap;
+use std::path::{Path, PathBuf};
+
+use polars::prelude::DataFrame;
+use thiserror::Error;
+
+/// Per-column metadata carried alongside the data: FITS TUNITn / TUCDn, Parquet and CSV
+/// sidecar equivalents.
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
+pub struct ColumnMeta {
+    /// Unit string (FITS standard 4.0 §4.3 unit syntax, e.g. "km/s", "Mpc", "deg", "mag").
+    pub unit: Option<String>,
+    /// IVOA Unified Content Descriptor (UCD1+), e.g. "src.redshift", "pos.eq.ra".
+    pub ucd: Option<String>,
+}
+
+/// A table: the data as a polars DataFrame and metadata by column name.
+#[derive(Debug, Clone, Default)]
+pub struct Table {
+    pub frame: DataFrame,
+    pub meta: BTreeMap<String, ColumnMeta>,
+}
+
+/// Ordered key/value provenance records written with every output.
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
+pub struct Provenance {
+    pub entries: Vec<(String, String)>,
+}
+
+/// What can go wrong at the edges, always naming the file.
+#[derive(Debug, Error)]
+pub enum CatalogueError {
+    #[error("{path}: {message}")]
+    Read { path: PathBuf, message: String },
+    #[error("{path}: {message}")]
+    Write { path: PathBuf, message: String },
+}
+
+impl CatalogueError {
+    pub fn read(path: &Path, message: impl Into<String>) -> Self {
+        CatalogueError::Read {
+            path: path.to_path_buf(),
+            message: message.into(),
+        }
+    }
+    pub fn write(path: &Path, message: impl Into<String>) -> Self {
+        CatalogueError::Write {
+            path: path.to_path_buf(),
+            message: message.into(),
+        }
+    }
+}
+
+pub mod delimited;
+pub mod parquet;
+
+/// Catalogue file formats, chosen by extension.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Format {
+    Fits,
+    Csv,
+    Tsv,
+    Parquet,
+}
+
+impl Format {
+    /// The format a path's extension names: `.fits`, `.fit`, `.fits.gz`, `.fit.gz`, `.csv`,
+    /// `.tsv`, `.parquet`.
+    pub fn from_path(path: &Path) -> Result<Format, CatalogueError> {
+        let name = path
+            .file_name()
+            .map(|n| n.to_string_lossy().to_ascii_lowercase())
+            .unwrap_or_default();
+        let f = if name.ends_with(".fits") || name.ends_with(".fit") || name.ends_with(".fits.gz") || name.ends_with(".fit.gz") || name.ends_with(".fts") {
+            Format::Fits
+        } else if name.ends_with(".csv") {
+            Format::Csv
+        } else if name.ends_with(".tsv") {
+            Format::Tsv
+        } else if name.ends_with(".parquet") || name.ends_with(".pq") {
+            Format::Parquet
+        } else {
+            return Err(CatalogueError::read(
+                path,
+                "unknown file type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet",
+            ));
+        };
+        Ok(f)
+    }
+}
+
+/// How to read.
+#[derive(Debug, Clone, Default)]
+pub struct ReadOptions {
+    /// FITS HDU, by EXTNAME or index.
+    pub hdu: Option<String>,
+}
+
+/// Read a catalogue in any supported format.
+pub fn read_table(path: &Path, options: &ReadOptions) -> Result<Table, CatalogueError> {
+    if !path.exists() {
+        return Err(CatalogueError::read(path, "no such file"));
+    }
+    match Format::from_path(path)? {
+        Format::Fits => fits::read_fits(path, options.hdu.as_deref()),
+        Format::Csv => delimited::read_delimited(path, b','),
+        Format::Tsv => delimited::read_delimited(path, b'\t'),
+        Format::Parquet => parquet::read_parquet(path),
+    }
+}
+
+/// How to write.
+#[derive(Debug, Clone, Default)]
+pub struct WriteOptions {
+    /// Replace an existing output.
+    pub force: bool,
+    /// Paths that must never be written (the inputs).
+    pub protected: Vec<PathBuf>,
+}
+
+/// The sidecar provenance file written next to a CSV/TSV output.
+pub fn sidecar_path(output: &Path) -> PathBuf {
+    let mut s = output.as_os_str().to_owned();
+    s.push(".provenance.json");
+    PathBuf::from(s)
+}
+
+/// Write a table atomically: into a temporary file in the output's folder, then renamed
+/// over the destination. Refuses to write over an input, or over an existing file without
+/// `force`.
+pub fn write_table(path: &Path, table: &Table, provenance: &Provenance, options: &WriteOptions) -> Result<(), CatalogueError> {
+    let format = Format::from_path(path).map_err(|_| {
+        CatalogueError::write(path, "unknown output type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet")
+    })?;
+    check_destination(path, options)?;
+    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    if !dir.is_dir() {
+        return Err(CatalogueError::write(path, format!("folder {} does not exist", dir.display())));
+    }
+    // Keep the extension so that writers that look at it (cfitsio's .gz) behave.
+    let name = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
+    let tmp = tempfile::Builder::new()
+        .prefix(".flowsift-partial-")
+        .suffix(&format!("-{name}"))
+        .tempfile_in(dir)
+        .map_err(|e| CatalogueError::write(path, format!("cannot create a temporary file: {e}")))?;
+    let tmp_path = tmp.path().to_path_buf();
+    // cfitsio refuses to create over an existing file; let it create the file itself.
+    if format == Format::Fits {
+        drop(tmp);
+        std::fs::remove_file(&tmp_path).ok();
+        let result = fits::write_fits(&tmp_path, table, provenance);
+        if let Err(e) = result {
+            std::fs::remove_file(&tmp_path).ok();
+            return Err(e);
+        }
+        std::fs::rename(&tmp_path, path).map_err(|e| {
+            std::fs::remove_file(&tmp_path).ok();
+            CatalogueError::write(path, format!("cannot move the finished file into place: {e}"))
+        })?;
+        return Ok(());
+    }
+    match format {
+        Format::Csv => delimited::write_delimited(tmp.as_file(), table, b',').map_err(|e| CatalogueError::write(path, e))?,
+        Format::Tsv => delimited::write_delimited(tmp.as_file(), table, b'\t').map_err(|e| CatalogueError::write(path, e))?,
+        Format::Parquet => parquet::write_parquet(tmp.as_file(), table, provenance).map_err(|e| CatalogueError::write(path, e))?,
+        Format::Fits => unreachable!(),
+    }
+    tmp.as_file().sync_all().ok();
+    if matches!(format, Format::Csv | Format::Tsv) {
+        write_json_atomically(&sidecar_path(path), &sidecar(table, provenance), options.force)?;
+    }
+    tmp.persist(path)
+        .map_err(|e| CatalogueError::write(path, format!("cannot move the finished file into place: {}", e.error)))?;
+    Ok(())
+}
+
+fn same_file(a: &Path, b: &Path) -> bool {
+    match (std::fs::canonicalize(a), std::fs::canonicalize(b)) {
+        (Ok(x), Ok(y)) => x == y,
+        _ => false,
+    }
+}
+
+fn check_destination(path: &Path, options: &WriteOptions) -> Result<(), CatalogueError> {
+    if options.protected.iter().any(|p| same_file(p, path)) {
+        return Err(CatalogueError::write(path, "refusing to overwrite the input file; choose another output"));
+    }
+    if path.exists() && !options.force {
+        return Err(CatalogueError::write(path, "output exists; pass --force to replace it"));
+    }
+    Ok(())
+}
+
+/// The sidecar's content: provenance plus per-column units and UCDs.
+fn sidecar(table: &Table, provenance: &Provenance) -> serde_json::Value {
+    let prov: serde_json::Map<String, serde_json::Value> = provenance
+        .entries
+        .iter()
+        .map(|(k, v)| (k.clone(), serde_json::Value::String(v.clone())))
+        .collect();
+    serde_json::json!({ "provenance": prov, "columns": table.meta })
+}
+
+/// Write JSON atomically (temporary file and rename).
+pub fn write_json_atomically(path: &Path, value: &serde_json::Value, force: bool) -> Result<(), CatalogueError> {
+    if path.exists() && !force {
+        return Err(CatalogueError::write(path, "file exists; pass --force to replace it"));
+    }
+    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let mut tmp = tempfile::Builder::new()
+        .prefix(".flowsift-partial-")
+        .tempfile_in(dir)
+        .map_err(|e| CatalogueError::write(path, format!("cannot create a temporary file: {e}")))?;
+    use std::io::Write;
+    serde_json::to_writer_pretty(&mut tmp, value).map_err(|e| CatalogueError::write(path, e.to_string()))?;
+    tmp.write_all(b"\n").map_err(|e| CatalogueError::write(path, e.to_string()))?;
+    tmp.persist(path)
+        .map_err(|e| CatalogueError::write(path, format!("cannot move the finished file into place: {}", e.error)))?;
+    Ok(())
+}

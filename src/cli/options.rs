@@ -1,0 +1,146 @@
+//! Flag groups shared by several subcommands. Each maps onto a plain settings struct of the
+//! library, so flags and run files have equal power.
+
+use clap::{Args, ValueEnum};
+
+use flowsift::physics::cosmology::LengthUnit;
+use flowsift::physics::estimators::DlConvention;
+use flowsift::physics::restframe::BoostMethod;
+use flowsift::settings::{ConventionChoice, CosmologyChoice, FrameChoice};
+
+/// Cosmology flags.
+#[derive(Debug, Clone, Default, Args)]
+pub struct CosmologyFlags {
+    /// Named parameter set: common (flat ΛCDM H0 = 70, Ω_m = 0.3; the default) or planck2018.
+    #[arg(long, value_name = "NAME", help_heading = "Cosmology")]
+    pub preset: Option<String>,
+    /// Hubble constant, km/s/Mpc.
+    #[arg(long, value_name = "H", allow_negative_numbers = true, help_heading = "Cosmology")]
+    pub h0: Option<f64>,
+    /// Matter density Ω_m.
+    #[arg(long = "omega-m", value_name = "OM", allow_negative_numbers = true, help_heading = "Cosmology")]
+    pub omega_m: Option<f64>,
+    /// Dark-energy density Ω_de; omitted means flat (Ω_de = 1 − Ω_m − Ω_r).
+    #[arg(long = "omega-de", value_name = "ODE", allow_negative_numbers = true, help_heading = "Cosmology")]
+    pub omega_de: Option<f64>,
+    /// Radiation density Ω_r (default 0: radiation off).
+    #[arg(long = "omega-r", value_name = "OR", allow_negative_numbers = true, help_heading = "Cosmology")]
+    pub omega_r: Option<f64>,
+    /// Dark-energy equation of state today, CPL w0 (default −1).
+    #[arg(long, value_name = "W0", allow_negative_numbers = true, help_heading = "Cosmology")]
+    pub w0: Option<f64>,
+    /// CPL wa: w(a) = w0 + wa (1 − a) (default 0).
+    #[arg(long, value_name = "WA", allow_negative_numbers = true, help_heading = "Cosmology")]
+    pub wa: Option<f64>,
+}
+
+impl CosmologyFlags {
+    pub fn choice(&self) -> CosmologyChoice {
+        CosmologyChoice {
+            preset: self.preset.clone(),
+            h0: self.h0,
+            omega_m: self.omega_m,
+            omega_de: self.omega_de,
+            omega_r: self.omega_r,
+            w0: self.w0,
+            wa: self.wa,
+        }
+    }
+}
+
+/// Rest-frame flags.
+#[derive(Debug, Clone, Default, Args)]
+pub struct FrameFlags {
+    /// Named CMB dipole: planck2018 (default) or cobe-firas. See `flowsift frames`.
+    #[arg(long, value_name = "NAME", conflicts_with = "apex", help_heading = "Rest frame")]
+    pub dipole: Option<String>,
+    /// Your own CMB-frame apex: speed (km/s), Galactic l and b (degrees), e.g. 370,264,48.
+    #[arg(long, value_name = "V,L,B", value_parser = parse_apex, allow_negative_numbers = true, help_heading = "Rest frame")]
+    pub apex: Option<[f64; 3]>,
+    /// How to move redshifts into the CMB frame: exact (relativistic boost, default) or
+    /// legacy-additive (cz + v cos θ; only to reproduce older catalogues).
+    #[arg(long, value_enum, value_name = "METHOD", help_heading = "Rest frame")]
+    pub boost: Option<BoostArg>,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum BoostArg {
+    Exact,
+    LegacyAdditive,
+}
+
+impl FrameFlags {
+    pub fn choice(&self) -> FrameChoice {
+        FrameChoice {
+            dipole: self.dipole.clone(),
+            apex: self.apex,
+            boost: self.boost.map(|b| match b {
+                BoostArg::Exact => BoostMethod::Exact,
+                BoostArg::LegacyAdditive => BoostMethod::LegacyAdditive,
+            }),
+            local_group: None,
+            galactic_rest: None,
+        }
+    }
+}
+
+fn parse_apex(s: &str) -> Result<[f64; 3], String> {
+    let parts: Vec<_> = s.split(',').map(str::trim).collect();
+    if parts.len() != 3 {
+        return Err(format!("expected three numbers V,L,B (km/s, deg, deg), got '{s}'"));
+    }
+    let mut out = [0.0f64; 3];
+    for (o, p) in out.iter_mut().zip(&parts) {
+        *o = p.parse().map_err(|_| format!("'{p}' in '{s}' is not a number"))?;
+        if !o.is_finite() {
+            return Err(format!("'{p}' in '{s}' is not a finite number"));
+        }
+    }
+    Ok(out)
+}
+
+/// Convention flags.
+#[derive(Debug, Clone, Default, Args)]
+pub struct ConventionFlags {
+    /// Luminosity-distance convention: observed (D_L = (1+z_helio) D_M(z_cos), default),
+    /// cosmological (D_L = (1+z_cos) D_M(z_cos)) or full (also the source's own motion).
+    #[arg(long = "dl-convention", value_enum, value_name = "NAME", help_heading = "Conventions")]
+    pub dl_convention: Option<DlConventionArg>,
+    /// Unit of distances in and out: mpc (default) or mpc-over-h (h⁻¹ Mpc).
+    #[arg(long = "length-unit", value_enum, value_name = "UNIT", help_heading = "Conventions")]
+    pub length_unit: Option<LengthUnitArg>,
+    /// Intrinsic velocity dispersion σ_* added in quadrature to velocity errors, km/s.
+    #[arg(long = "sigma-star", value_name = "KM_S", help_heading = "Conventions")]
+    pub sigma_star: Option<f64>,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum DlConventionArg {
+    Observed,
+    Cosmological,
+    Full,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum LengthUnitArg {
+    Mpc,
+    MpcOverH,
+}
+
+impl ConventionFlags {
+    pub fn choice(&self) -> ConventionChoice {
+        ConventionChoice {
+            dl_convention: self.dl_convention.map(|c| match c {
+                DlConventionArg::Observed => DlConvention::Observed,
+                DlConventionArg::Cosmological => DlConvention::Cosmological,
+                DlConventionArg::Full => DlConvention::Full,
+            }),
+            length_unit: self.length_unit.map(|u| match u {
+                LengthUnitArg::Mpc => LengthUnit::Mpc,
+                LengthUnitArg::MpcOverH => LengthUnit::MpcOverH,
+            }),
+            sigma_star: self.sigma_star,
+        }
+    }
+}
+
