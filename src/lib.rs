@@ -49,4 +49,7 @@
 pub mod catalogue;
 pub mod mock;
 pub mod physics;
+pub mod pipeline;
+pub mod plan;
+pub mod run;
 pub mod settings;

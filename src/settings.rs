@@ -70,7 +70,10 @@ impl CosmologyChoice {
         params.validate().map_err(|e| e.to_string())?;
         let changed = params != base;
         let source = if changed {
-            format!("user parameters (starting from preset '{}': {})", preset.name, preset.source)
+            format!(
+                "user parameters (starting from preset '{}': {})",
+                preset.name, preset.source
+            )
         } else {
             format!("preset '{}': {}", preset.name, preset.source)
         };
@@ -128,16 +131,26 @@ impl FrameChoice {
             dipole: other.dipole.clone().or_else(|| self.dipole.clone()),
             apex: other.apex.or(self.apex),
             boost: other.boost.or(self.boost),
-            local_group: other.local_group.clone().or_else(|| self.local_group.clone()),
-            galactic_rest: other.galactic_rest.clone().or_else(|| self.galactic_rest.clone()),
+            local_group: other
+                .local_group
+                .clone()
+                .or_else(|| self.local_group.clone()),
+            galactic_rest: other
+                .galactic_rest
+                .clone()
+                .or_else(|| self.galactic_rest.clone()),
         }
     }
 
     /// Resolve names and numbers into boosts.
     pub fn resolve(&self) -> Result<ResolvedFrames, String> {
         let cmb_apex = match (&self.dipole, &self.apex) {
-            (Some(_), Some(_)) => return Err("give either a named dipole or a user apex, not both".into()),
-            (_, Some([v, l, b])) => Apex::user(Cmb::NAME, *v, *l, *b).map_err(|e| format!("user apex: {e}"))?,
+            (Some(_), Some(_)) => {
+                return Err("give either a named dipole or a user apex, not both".into())
+            }
+            (_, Some([v, l, b])) => {
+                Apex::user(Cmb::NAME, *v, *l, *b).map_err(|e| format!("user apex: {e}"))?
+            }
             (Some(name), None) => find_apex(Cmb::NAME, name)?,
             (None, None) => default_apex(Cmb::NAME),
         };
@@ -187,7 +200,11 @@ impl ConventionChoice {
 }
 
 /// Cautions printed with results, so that assumptions are never silent.
-pub fn cautions(cosmology: &ResolvedCosmology, frames: &ResolvedFrames, convention: DlConvention) -> Vec<String> {
+pub fn cautions(
+    cosmology: &ResolvedCosmology,
+    frames: &ResolvedFrames,
+    convention: DlConvention,
+) -> Vec<String> {
     let mut out = vec![
         format!(
             "Cosmological redshifts assume {} (H0 = {} km/s/Mpc, Ω_m = {}, Ω_de = {}, Ω_k = {:.3e}); peculiar velocities scale with this choice, most strongly through H0 against the distance zero point.",

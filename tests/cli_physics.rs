@@ -31,10 +31,21 @@ fn galaxy_json_matches_reference() {
             .arg(r.f("z_helio").to_string())
             .arg("--mu")
             .arg(r.f("mu").to_string())
-            .args(["--dl-convention", r.s("dl_convention"), "--h0", "70", "--omega-m", "0.3"])
+            .args([
+                "--dl-convention",
+                r.s("dl_convention"),
+                "--h0",
+                "70",
+                "--omega-m",
+                "0.3",
+            ])
             .output()
             .unwrap();
-        assert!(out.status.success(), "{}", String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
         let j = json_of(&out.stdout);
         let g = |k: &str| j[k].as_f64().unwrap_or_else(|| panic!("missing {k}"));
         assert!((g("z_cmb") - r.f("z_cmb")).abs() < 2e-6);
@@ -45,7 +56,10 @@ fn galaxy_json_matches_reference() {
         for k in ["glon", "glat", "sgl", "sgb", "z_helio", "z_pec", "eta"] {
             assert!(j[k].is_number(), "{k}");
         }
-        assert!(j.get("v_pec_err").is_none(), "no error given, no error reported");
+        assert!(
+            j.get("v_pec_err").is_none(),
+            "no error given, no error reported"
+        );
     }
 }
 
@@ -53,7 +67,17 @@ fn galaxy_json_matches_reference() {
 #[test]
 fn galaxy_reports_errors_when_given() {
     let out = flowsift()
-        .args(["galaxy", "--ra", "10:00:24.0", "--dec", "-02:12:00", "--z-helio", "0.0231", "--mu", "34.85"])
+        .args([
+            "galaxy",
+            "--ra",
+            "10:00:24.0",
+            "--dec",
+            "-02:12:00",
+            "--z-helio",
+            "0.0231",
+            "--mu",
+            "34.85",
+        ])
         .args(["--mu-err", "0.4", "--z-err", "0.0001", "--json"])
         .output()
         .unwrap();
@@ -66,9 +90,22 @@ fn galaxy_reports_errors_when_given() {
 /// Source: sky_frames.csv (astropy SkyCoord) through the command line.
 #[test]
 fn galaxy_sky_angles_match_astropy() {
-    for r in fixture("sky_frames.csv").records().iter().skip(11).step_by(30) {
+    for r in fixture("sky_frames.csv")
+        .records()
+        .iter()
+        .skip(11)
+        .step_by(30)
+    {
         let out = flowsift()
-            .args(["galaxy", "--json", "--z-helio", "0.05", "--mu", "36.8", "--ra"])
+            .args([
+                "galaxy",
+                "--json",
+                "--z-helio",
+                "0.05",
+                "--mu",
+                "36.8",
+                "--ra",
+            ])
             .arg(r.f("ra").to_string())
             .arg("--dec")
             .arg(r.f("dec").to_string())
@@ -96,19 +133,42 @@ fn distances_json_matches_astropy() {
         let p = rows[0];
         let out = flowsift()
             .args(["distances", "--json", "--z", &zs.join(",")])
-            .args(["--h0", &p.f("h0").to_string(), "--omega-m", &p.f("omega_m").to_string()])
-            .args(["--omega-de", &p.f("omega_de").to_string(), "--omega-r", &p.f("omega_r").to_string()])
-            .args(["--w0", &p.f("w0").to_string(), "--wa", &p.f("wa").to_string()])
+            .args([
+                "--h0",
+                &p.f("h0").to_string(),
+                "--omega-m",
+                &p.f("omega_m").to_string(),
+            ])
+            .args([
+                "--omega-de",
+                &p.f("omega_de").to_string(),
+                "--omega-r",
+                &p.f("omega_r").to_string(),
+            ])
+            .args([
+                "--w0",
+                &p.f("w0").to_string(),
+                "--wa",
+                &p.f("wa").to_string(),
+            ])
             .output()
             .unwrap();
-        assert!(out.status.success(), "{m}: {}", String::from_utf8_lossy(&out.stderr));
+        assert!(
+            out.status.success(),
+            "{m}: {}",
+            String::from_utf8_lossy(&out.stderr)
+        );
         let j = json_of(&out.stdout);
         let arr = j.as_array().unwrap();
         assert_eq!(arr.len(), rows.len());
         for (got, want) in arr.iter().zip(&rows) {
             for k in ["d_c", "d_m", "d_l", "d_a"] {
                 let (g, w) = (got[k].as_f64().unwrap(), want.f(k));
-                assert!((g - w).abs() / w < 1e-5, "{m} z={} {k}: {g} vs {w}", want.f("z"));
+                assert!(
+                    (g - w).abs() / w < 1e-5,
+                    "{m} z={} {k}: {g} vs {w}",
+                    want.f("z")
+                );
             }
             assert!((got["mu"].as_f64().unwrap() - want.f("mu")).abs() < 1e-5);
         }
@@ -120,7 +180,16 @@ fn distances_json_matches_astropy() {
 fn distances_in_inverse_h_megaparsecs() {
     let run = |unit: &str| {
         let out = flowsift()
-            .args(["distances", "--json", "--z", "0.1", "--h0", "70", "--length-unit", unit])
+            .args([
+                "distances",
+                "--json",
+                "--z",
+                "0.1",
+                "--h0",
+                "70",
+                "--length-unit",
+                unit,
+            ])
             .output()
             .unwrap();
         json_of(&out.stdout)[0]["d_c"].as_f64().unwrap()
@@ -129,69 +198,307 @@ fn distances_in_inverse_h_megaparsecs() {
 }
 
 fn fails_with(args: &[&str], message: &str) {
-    flowsift().args(args).assert().failure().stderr(predicate::str::contains(message));
+    flowsift()
+        .args(args)
+        .assert()
+        .failure()
+        .stderr(predicate::str::contains(message));
 }
 
 #[test]
 fn bad_input_redshift_not_above_minus_one() {
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "-1", "--mu", "34"], "not above -1");
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "-1",
+            "--mu",
+            "34",
+        ],
+        "not above -1",
+    );
     fails_with(&["distances", "--z", "0.1,-1.5"], "not above -1");
 }
 
 #[test]
 fn bad_input_declination_out_of_range() {
-    fails_with(&["galaxy", "--ra", "10", "--dec", "95", "--z-helio", "0.02", "--mu", "34"], "outside [-90°, 90°]");
-    fails_with(&["galaxy", "--ra", "10", "--dec", "-90:30:00", "--z-helio", "0.02", "--mu", "34"], "outside [-90°, 90°]");
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "95",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "34",
+        ],
+        "outside [-90°, 90°]",
+    );
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "-90:30:00",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "34",
+        ],
+        "outside [-90°, 90°]",
+    );
 }
 
 #[test]
 fn bad_input_not_a_number() {
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "NaN", "--mu", "34"], "not a finite number");
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02", "--mu", "nan"], "not a finite number");
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "NaN",
+            "--mu",
+            "34",
+        ],
+        "not a finite number",
+    );
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "nan",
+        ],
+        "not a finite number",
+    );
     fails_with(&["distances", "--z", "nan"], "not a finite redshift");
-    fails_with(&["galaxy", "--ra", "ten", "--dec", "10", "--z-helio", "0.02", "--mu", "34"], "cannot parse right ascension");
-    fails_with(&["galaxy", "--ra", "12:61:00", "--dec", "10", "--z-helio", "0.02", "--mu", "34"], "below 60");
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "ten",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "34",
+        ],
+        "cannot parse right ascension",
+    );
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "12:61:00",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "34",
+        ],
+        "below 60",
+    );
 }
 
 #[test]
 fn bad_input_non_positive_distance() {
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02", "--dl", "0"], "positive distance");
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02", "--dc", "-5"], "positive distance");
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--dl",
+            "0",
+        ],
+        "positive distance",
+    );
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--dc",
+            "-5",
+        ],
+        "positive distance",
+    );
 }
 
 #[test]
 fn bad_input_cosmology_without_expansion() {
     // Ω_m = 0, Ω_de = 3: E² = 3 − 2(1+z)² reaches 0 at z ≈ 0.22.
-    fails_with(&["distances", "--z", "1", "--omega-m", "0", "--omega-de", "3"], "E(z)²");
-    fails_with(&["galaxy", "--ra", "1", "--dec", "1", "--z-helio", "0.5", "--mu", "42", "--omega-m", "0", "--omega-de", "3"], "E(z)²");
-    fails_with(&["distances", "--z", "1", "--h0", "-70"], "H0 must be positive");
+    fails_with(
+        &["distances", "--z", "1", "--omega-m", "0", "--omega-de", "3"],
+        "E(z)²",
+    );
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "1",
+            "--dec",
+            "1",
+            "--z-helio",
+            "0.5",
+            "--mu",
+            "42",
+            "--omega-m",
+            "0",
+            "--omega-de",
+            "3",
+        ],
+        "E(z)²",
+    );
+    fails_with(
+        &["distances", "--z", "1", "--h0", "-70"],
+        "H0 must be positive",
+    );
 }
 
 #[test]
 fn bad_input_conflicting_distance_flags() {
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02", "--mu", "34", "--dc", "100"], "cannot be used with");
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02"], "required");
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02", "--mu", "34", "--dipole", "planck2018", "--apex", "370,264,48"], "cannot be used with");
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "34",
+            "--dc",
+            "100",
+        ],
+        "cannot be used with",
+    );
+    fails_with(
+        &["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02"],
+        "required",
+    );
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "34",
+            "--dipole",
+            "planck2018",
+            "--apex",
+            "370,264,48",
+        ],
+        "cannot be used with",
+    );
 }
 
 #[test]
 fn bad_input_unknown_names() {
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02", "--mu", "34", "--dipole", "nope"], "known: planck2018");
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "0.02", "--mu", "34", "--apex", "370,264"], "three numbers");
-    fails_with(&["distances", "--z", "0.1", "--preset", "nope"], "known: common");
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "34",
+            "--dipole",
+            "nope",
+        ],
+        "known: planck2018",
+    );
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "0.02",
+            "--mu",
+            "34",
+            "--apex",
+            "370,264",
+        ],
+        "three numbers",
+    );
+    fails_with(
+        &["distances", "--z", "0.1", "--preset", "nope"],
+        "known: common",
+    );
 }
 
 /// A blueshifted object cannot have a cosmological distance: clear message, no panic.
 #[test]
 fn bad_input_blueshift_in_cmb_frame() {
-    fails_with(&["galaxy", "--ra", "10", "--dec", "10", "--z-helio", "-0.002", "--mu", "30"], "CMB-frame redshift must be positive");
+    fails_with(
+        &[
+            "galaxy",
+            "--ra",
+            "10",
+            "--dec",
+            "10",
+            "--z-helio",
+            "-0.002",
+            "--mu",
+            "30",
+        ],
+        "CMB-frame redshift must be positive",
+    );
 }
 
 /// The legacy additive boost is available only by name and is flagged in the output.
 #[test]
 fn legacy_additive_is_named_and_flagged() {
     let out = flowsift()
-        .args(["galaxy", "--ra", "150", "--dec", "20", "--z-helio", "0.03", "--mu", "35.5", "--boost", "legacy-additive", "--json"])
+        .args([
+            "galaxy",
+            "--ra",
+            "150",
+            "--dec",
+            "20",
+            "--z-helio",
+            "0.03",
+            "--mu",
+            "35.5",
+            "--boost",
+            "legacy-additive",
+            "--json",
+        ])
         .output()
         .unwrap();
     let j = json_of(&out.stdout);

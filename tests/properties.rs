@@ -2,7 +2,9 @@
 //! associative, distance inversions return the redshift, boosts invert.
 
 use flowsift::physics::cosmology::{Cosmology, CosmologyParams};
-use flowsift::physics::redshift::{compose, doppler_redshift, doppler_velocity, Cmb, Heliocentric, LocalGroup, Redshift};
+use flowsift::physics::redshift::{
+    compose, doppler_redshift, doppler_velocity, Cmb, Heliocentric, LocalGroup, Redshift,
+};
 use flowsift::physics::restframe::{between, default_apex, Boost};
 use flowsift::physics::sky::{Direction, Icrs, SkyRotations};
 use proptest::prelude::*;

@@ -18,7 +18,11 @@ pub fn read_delimited(path: &Path, separator: u8) -> Result<Table, CatalogueErro
             p.with_separator(separator)
                 .with_comment_prefix(Some("#"))
                 .with_missing_is_null(true)
-                .with_null_values(Some(NullValues::AllColumns(vec!["".into(), "NA".into(), "null".into()])))
+                .with_null_values(Some(NullValues::AllColumns(vec![
+                    "".into(),
+                    "NA".into(),
+                    "null".into(),
+                ])))
         });
     let frame = options
         .try_into_reader_with_file_path(Some(path.to_path_buf()))

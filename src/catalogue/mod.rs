@@ -76,7 +76,12 @@ impl Format {
             .file_name()
             .map(|n| n.to_string_lossy().to_ascii_lowercase())
             .unwrap_or_default();
-        let f = if name.ends_with(".fits") || name.ends_with(".fit") || name.ends_with(".fits.gz") || name.ends_with(".fit.gz") || name.ends_with(".fts") {
+        let f = if name.ends_with(".fits")
+            || name.ends_with(".fit")
+            || name.ends_with(".fits.gz")
+            || name.ends_with(".fit.gz")
+            || name.ends_with(".fts")
+        {
             Format::Fits
         } else if name.ends_with(".csv") {
             Format::Csv
@@ -133,17 +138,34 @@ pub fn sidecar_path(output: &Path) -> PathBuf {
 /// Write a table atomically: into a temporary file in the output's folder, then renamed
 /// over the destination. Refuses to write over an input, or over an existing file without
 /// `force`.
-pub fn write_table(path: &Path, table: &Table, provenance: &Provenance, options: &WriteOptions) -> Result<(), CatalogueError> {
+pub fn write_table(
+    path: &Path,
+    table: &Table,
+    provenance: &Provenance,
+    options: &WriteOptions,
+) -> Result<(), CatalogueError> {
     let format = Format::from_path(path).map_err(|_| {
-        CatalogueError::write(path, "unknown output type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet")
+        CatalogueError::write(
+            path,
+            "unknown output type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet",
+        )
     })?;
     check_destination(path, options)?;
-    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let dir = path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
     if !dir.is_dir() {
-        return Err(CatalogueError::write(path, format!("folder {} does not exist", dir.display())));
+        return Err(CatalogueError::write(
+            path,
+            format!("folder {} does not exist", dir.display()),
+        ));
     }
     // Keep the extension so that writers that look at it (cfitsio's .gz) behave.
-    let name = path.file_name().map(|n| n.to_string_lossy().to_string()).unwrap_or_default();
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
     let tmp = tempfile::Builder::new()
         .prefix(".flowsift-partial-")
         .suffix(&format!("-{name}"))
@@ -157,27 +179,61 @@ pub fn write_table(path: &Path, table: &Table, provenance: &Provenance, options:
         let result = fits::write_fits(&tmp_path, table, provenance);
         if let Err(e) = result {
             std::fs::remove_file(&tmp_path).ok();
-            return Err(e);
+            // Name the destination, not the temporary file, in the message.
+            let message = match e {
+                CatalogueError::Read { message, .. } | CatalogueError::Write { message, .. } => {
+                    message.replace(&tmp_path.display().to_string(), &path.display().to_string())
+                }
+            };
+            return Err(CatalogueError::write(path, message));
         }
+        set_readable(&tmp_path);
         std::fs::rename(&tmp_path, path).map_err(|e| {
             std::fs::remove_file(&tmp_path).ok();
-            CatalogueError::write(path, format!("cannot move the finished file into place: {e}"))
+            CatalogueError::write(
+                path,
+                format!("cannot move the finished file into place: {e}"),
+            )
         })?;
         return Ok(());
     }
     match format {
-        Format::Csv => delimited::write_delimited(tmp.as_file(), table, b',').map_err(|e| CatalogueError::write(path, e))?,
-        Format::Tsv => delimited::write_delimited(tmp.as_file(), table, b'\t').map_err(|e| CatalogueError::write(path, e))?,
-        Format::Parquet => parquet::write_parquet(tmp.as_file(), table, provenance).map_err(|e| CatalogueError::write(path, e))?,
+        Format::Csv => delimited::write_delimited(tmp.as_file(), table, b',')
+            .map_err(|e| CatalogueError::write(path, e))?,
+        Format::Tsv => delimited::write_delimited(tmp.as_file(), table, b'\t')
+            .map_err(|e| CatalogueError::write(path, e))?,
+        Format::Parquet => parquet::write_parquet(tmp.as_file(), table, provenance)
+            .map_err(|e| CatalogueError::write(path, e))?,
         Format::Fits => unreachable!(),
     }
     tmp.as_file().sync_all().ok();
+    set_readable(tmp.path());
     if matches!(format, Format::Csv | Format::Tsv) {
-        write_json_atomically(&sidecar_path(path), &sidecar(table, provenance), options.force)?;
+        write_json_atomically(
+            &sidecar_path(path),
+            &sidecar(table, provenance),
+            options.force,
+        )?;
     }
-    tmp.persist(path)
-        .map_err(|e| CatalogueError::write(path, format!("cannot move the finished file into place: {}", e.error)))?;
+    tmp.persist(path).map_err(|e| {
+        CatalogueError::write(
+            path,
+            format!("cannot move the finished file into place: {}", e.error),
+        )
+    })?;
     Ok(())
+}
+
+/// Temporary files are created private (0600); a finished catalogue gets the usual
+/// permissions of a new file (0666 less the process umask, here taken as 022: 0644).
+fn set_readable(path: &Path) {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        std::fs::set_permissions(path, std::fs::Permissions::from_mode(0o644)).ok();
+    }
+    #[cfg(not(unix))]
+    let _ = path;
 }
 
 fn same_file(a: &Path, b: &Path) -> bool {
@@ -189,10 +245,16 @@ fn same_file(a: &Path, b: &Path) -> bool {
 
 fn check_destination(path: &Path, options: &WriteOptions) -> Result<(), CatalogueError> {
     if options.protected.iter().any(|p| same_file(p, path)) {
-        return Err(CatalogueError::write(path, "refusing to overwrite the input file; choose another output"));
+        return Err(CatalogueError::write(
+            path,
+            "refusing to overwrite the input file; choose another output",
+        ));
     }
     if path.exists() && !options.force {
-        return Err(CatalogueError::write(path, "output exists; pass --force to replace it"));
+        return Err(CatalogueError::write(
+            path,
+            "output exists; pass --force to replace it",
+        ));
     }
     Ok(())
 }
@@ -208,19 +270,36 @@ fn sidecar(table: &Table, provenance: &Provenance) -> serde_json::Value {
 }
 
 /// Write JSON atomically (temporary file and rename).
-pub fn write_json_atomically(path: &Path, value: &serde_json::Value, force: bool) -> Result<(), CatalogueError> {
+pub fn write_json_atomically(
+    path: &Path,
+    value: &serde_json::Value,
+    force: bool,
+) -> Result<(), CatalogueError> {
     if path.exists() && !force {
-        return Err(CatalogueError::write(path, "file exists; pass --force to replace it"));
+        return Err(CatalogueError::write(
+            path,
+            "file exists; pass --force to replace it",
+        ));
     }
-    let dir = path.parent().filter(|p| !p.as_os_str().is_empty()).unwrap_or(Path::new("."));
+    let dir = path
+        .parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."));
     let mut tmp = tempfile::Builder::new()
         .prefix(".flowsift-partial-")
         .tempfile_in(dir)
         .map_err(|e| CatalogueError::write(path, format!("cannot create a temporary file: {e}")))?;
     use std::io::Write;
-    serde_json::to_writer_pretty(&mut tmp, value).map_err(|e| CatalogueError::write(path, e.to_string()))?;
-    tmp.write_all(b"\n").map_err(|e| CatalogueError::write(path, e.to_string()))?;
-    tmp.persist(path)
-        .map_err(|e| CatalogueError::write(path, format!("cannot move the finished file into place: {}", e.error)))?;
+    serde_json::to_writer_pretty(&mut tmp, value)
+        .map_err(|e| CatalogueError::write(path, e.to_string()))?;
+    tmp.write_all(b"\n")
+        .map_err(|e| CatalogueError::write(path, e.to_string()))?;
+    set_readable(tmp.path());
+    tmp.persist(path).map_err(|e| {
+        CatalogueError::write(
+            path,
+            format!("cannot move the finished file into place: {}", e.error),
+        )
+    })?;
     Ok(())
 }

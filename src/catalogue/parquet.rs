@@ -29,7 +29,10 @@ pub fn write_parquet(file: &File, table: &Table, provenance: &Provenance) -> Res
         .iter()
         .map(|(k, v)| (format!("flowsift.{k}"), v.clone()))
         .collect();
-    kv.push((COLUMNS_KEY.into(), serde_json::to_string(&table.meta).map_err(|e| e.to_string())?));
+    kv.push((
+        COLUMNS_KEY.into(),
+        serde_json::to_string(&table.meta).map_err(|e| e.to_string())?,
+    ));
     let mut df = table.frame.clone();
     ParquetWriter::new(file)
         .with_key_value_metadata(Some(KeyValueMetadata::from_static(kv)))

@@ -11,7 +11,13 @@ use super::options::{ConventionFlags, CosmologyFlags};
 #[command(after_help = "Example:\n  flowsift distances --z 0.01,0.1,1 --omega-m 0.31 --json")]
 pub struct DistancesArgs {
     /// Redshifts, comma-separated.
-    #[arg(long, value_name = "Z1,Z2,…", value_delimiter = ',', allow_negative_numbers = true, required = true)]
+    #[arg(
+        long,
+        value_name = "Z1,Z2,…",
+        value_delimiter = ',',
+        allow_negative_numbers = true,
+        required = true
+    )]
     pub z: Vec<f64>,
     #[command(flatten)]
     pub cosmology: CosmologyFlags,
@@ -32,16 +38,21 @@ pub fn run(a: DistancesArgs) -> anyhow::Result<()> {
             return Err(anyhow!("--z: {z} is not a finite redshift"));
         }
         if z <= -1.0 {
-            return Err(anyhow!("--z: redshift {z} is not above -1 (1 + z must be positive)"));
+            return Err(anyhow!(
+                "--z: redshift {z} is not above -1 (1 + z must be positive)"
+            ));
         }
         if z < 0.0 {
-            return Err(anyhow!("--z: negative redshift {z} has no distance in an expanding model"));
+            return Err(anyhow!(
+                "--z: negative redshift {z} has no distance in an expanding model"
+            ));
         }
     }
     let resolved = a.cosmology.choice().resolve().map_err(|e| anyhow!(e))?;
     let z_max = zs.iter().cloned().fold(0.0, f64::max);
     let cosmology = if z_max > flowsift::physics::cosmology::DEFAULT_Z_MAX {
-        flowsift::physics::cosmology::Cosmology::with_z_max(resolved.params, z_max * 1.01).map_err(|e| anyhow!("{e}"))?
+        flowsift::physics::cosmology::Cosmology::with_z_max(resolved.params, z_max * 1.01)
+            .map_err(|e| anyhow!("{e}"))?
     } else {
         resolved.build(z_max).map_err(|e| anyhow!(e))?
     };

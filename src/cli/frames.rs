@@ -20,7 +20,12 @@ pub fn run(a: FramesArgs) -> anyhow::Result<()> {
             .iter()
             .map(|p| serde_json::json!({"name": p.name, "params": p.params, "source": p.source}))
             .collect();
-        println!("{}", serde_json::to_string_pretty(&serde_json::json!({"apices": apices, "cosmology_presets": presets}))?);
+        println!(
+            "{}",
+            serde_json::to_string_pretty(
+                &serde_json::json!({"apices": apices, "cosmology_presets": presets})
+            )?
+        );
         return Ok(());
     }
     println!("Apices (the Sun's velocity relative to each frame; the first of each frame is its default):");

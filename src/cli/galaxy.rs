@@ -28,7 +28,13 @@ pub struct GalaxyArgs {
     #[arg(long, allow_hyphen_values = true)]
     pub dec: String,
     /// Heliocentric redshift.
-    #[arg(long = "z-helio", value_name = "Z", allow_negative_numbers = true, required_unless_present = "cz_helio", conflicts_with = "cz_helio")]
+    #[arg(
+        long = "z-helio",
+        value_name = "Z",
+        allow_negative_numbers = true,
+        required_unless_present = "cz_helio",
+        conflicts_with = "cz_helio"
+    )]
     pub z_helio: Option<f64>,
     /// Heliocentric recession velocity c·z, km/s (instead of --z-helio).
     #[arg(long = "cz-helio", value_name = "KM_S", allow_negative_numbers = true)]
@@ -37,16 +43,36 @@ pub struct GalaxyArgs {
     #[arg(long = "z-err", value_name = "Z")]
     pub z_err: Option<f64>,
     /// Distance modulus μ, mag.
-    #[arg(long, value_name = "MAG", allow_negative_numbers = true, group = "distance")]
+    #[arg(
+        long,
+        value_name = "MAG",
+        allow_negative_numbers = true,
+        group = "distance"
+    )]
     pub mu: Option<f64>,
     /// Luminosity distance (Mpc, or h⁻¹ Mpc with --length-unit mpc-over-h).
-    #[arg(long, value_name = "MPC", allow_negative_numbers = true, group = "distance")]
+    #[arg(
+        long,
+        value_name = "MPC",
+        allow_negative_numbers = true,
+        group = "distance"
+    )]
     pub dl: Option<f64>,
     /// Line-of-sight comoving distance (Mpc, or h⁻¹ Mpc).
-    #[arg(long, value_name = "MPC", allow_negative_numbers = true, group = "distance")]
+    #[arg(
+        long,
+        value_name = "MPC",
+        allow_negative_numbers = true,
+        group = "distance"
+    )]
     pub dc: Option<f64>,
     /// Log-distance ratio η = log10(D_C(z_cmb)/D_C(z_cos)).
-    #[arg(long, value_name = "ETA", allow_negative_numbers = true, group = "distance")]
+    #[arg(
+        long,
+        value_name = "ETA",
+        allow_negative_numbers = true,
+        group = "distance"
+    )]
     pub eta: Option<f64>,
     /// 1σ error of μ, mag.
     #[arg(long = "mu-err", value_name = "MAG", requires = "mu")]
@@ -88,12 +114,23 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
         _ => return Err(anyhow!("give one distance: --mu, --dl, --dc or --eta")),
     };
     if !value.is_finite() {
-        return Err(anyhow!(PhysicsError::NotFinite { quantity: "distance", value })).context(format!("--{}", kind.name()));
+        return Err(anyhow!(PhysicsError::NotFinite {
+            quantity: "distance",
+            value
+        }))
+        .context(format!("--{}", kind.name()));
     }
     if matches!(kind, DistanceKind::Dl | DistanceKind::Dc) && value <= 0.0 {
-        return Err(anyhow!("--{} must be a positive distance, got {value}", kind.name()));
+        return Err(anyhow!(
+            "--{} must be a positive distance, got {value}",
+            kind.name()
+        ));
     }
-    for (flag, v) in [("--z-err", a.z_err), ("distance error", error), ("--sigma-star", a.conventions.sigma_star)] {
+    for (flag, v) in [
+        ("--z-err", a.z_err),
+        ("distance error", error),
+        ("--sigma-star", a.conventions.sigma_star),
+    ] {
         if let Some(v) = v {
             if !(v.is_finite() && v >= 0.0) {
                 return Err(anyhow!("{flag} must be a non-negative number, got {v}"));
@@ -108,7 +145,9 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
 
     // The table must reach beyond the largest redshift in play.
     let z_needed = (z_helio + 1.0) * 1.01 + 1.0;
-    let cosmology = cosmo_choice.build(z_needed.min(19.0)).map_err(|e| anyhow!(e))?;
+    let cosmology = cosmo_choice
+        .build(z_needed.min(19.0))
+        .map_err(|e| anyhow!(e))?;
     let ctx = ObjectContext {
         cosmology: &cosmology,
         rotations: SkyRotations::default(),
@@ -131,10 +170,14 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
             error: error.unwrap_or(0.0),
         },
     };
-    let r = evaluate(&ctx, &input).map_err(|e| anyhow!("cannot derive a peculiar velocity: {e}"))?;
+    let r =
+        evaluate(&ctx, &input).map_err(|e| anyhow!("cannot derive a peculiar velocity: {e}"))?;
 
     // The other rest frames, for reference.
-    let gal = ctx.rotations.icrs_to_galactic.apply(&Direction::<Icrs>::from_lon_lat_deg(ra, dec)?);
+    let gal = ctx
+        .rotations
+        .icrs_to_galactic
+        .apply(&Direction::<Icrs>::from_lon_lat_deg(ra, dec)?);
     let zh = Redshift::<Heliocentric>::new(z_helio)?;
     let z_lg = frames.local_group.from_heliocentric(zh, &gal).value();
     let z_gsr = frames.galactic_rest.from_heliocentric(zh, &gal).value();
@@ -176,27 +219,77 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
     }
     let f = |x: f64, p: usize| format!("{x:.p$}");
     let mut rows = vec![
-        row("glon, glat", format!("{:.5}, {:.5}", r.glon, r.glat), "deg, Galactic"),
-        row("sgl, sgb", format!("{:.5}, {:.5}", r.sgl, r.sgb), "deg, supergalactic"),
+        row(
+            "glon, glat",
+            format!("{:.5}, {:.5}", r.glon, r.glat),
+            "deg, Galactic",
+        ),
+        row(
+            "sgl, sgb",
+            format!("{:.5}, {:.5}", r.sgl, r.sgb),
+            "deg, supergalactic",
+        ),
         row("z_helio", f(z_helio, 7), "heliocentric (input)"),
-        row("z_cmb", f(r.z_cmb, 7), &format!("CMB frame, '{}' apex, {} boost", frames.cmb_apex.name, frames.method.name())),
-        row("z_lg", f(z_lg, 7), &format!("Local Group frame, '{}' apex", frames.local_group_apex.name)),
-        row("z_gsr", f(z_gsr, 7), &format!("Galactic standard of rest, '{}' apex", frames.galactic_rest_apex.name)),
-        row("z_cos", f(r.z_cos, 7), &format!("from the {} under the cosmology", kind.name())),
+        row(
+            "z_cmb",
+            f(r.z_cmb, 7),
+            &format!(
+                "CMB frame, '{}' apex, {} boost",
+                frames.cmb_apex.name,
+                frames.method.name()
+            ),
+        ),
+        row(
+            "z_lg",
+            f(z_lg, 7),
+            &format!("Local Group frame, '{}' apex", frames.local_group_apex.name),
+        ),
+        row(
+            "z_gsr",
+            f(z_gsr, 7),
+            &format!(
+                "Galactic standard of rest, '{}' apex",
+                frames.galactic_rest_apex.name
+            ),
+        ),
+        row(
+            "z_cos",
+            f(r.z_cos, 7),
+            &format!("from the {} under the cosmology", kind.name()),
+        ),
         row("z_pec", f(r.z_pec, 7), "(1+z_cmb)/(1+z_cos) - 1"),
-        row("v_pec", f(r.v_pec, 1), "km/s, relativistic Doppler of z_pec"),
+        row(
+            "v_pec",
+            f(r.v_pec, 1),
+            "km/s, relativistic Doppler of z_pec",
+        ),
     ];
     if has_errors {
         rows.push(row("v_pec_err", f(r.v_pec_err, 1), "km/s, first order"));
     }
     rows.extend([
-        row("d_c", f(r.d_c, 3), &format!("{unit}, comoving distance at z_cos")),
+        row(
+            "d_c",
+            f(r.d_c, 3),
+            &format!("{unit}, comoving distance at z_cos"),
+        ),
         row("eta", f(r.eta, 5), "log10(D_C(z_cmb)/D_C(z_cos))"),
-        row("v_pec_low_z", f(r.v_pec_low_z, 1), "km/s, cz - H0 d (comparison only)"),
-        row("v_pec_watkins_feldman", f(r.v_pec_watkins_feldman, 1), "km/s, Watkins & Feldman 2015 (comparison only)"),
+        row(
+            "v_pec_low_z",
+            f(r.v_pec_low_z, 1),
+            "km/s, cz - H0 d (comparison only)",
+        ),
+        row(
+            "v_pec_watkins_feldman",
+            f(r.v_pec_watkins_feldman, 1),
+            "km/s, Watkins & Feldman 2015 (comparison only)",
+        ),
     ]);
     if has_errors {
-        rows.insert(rows.len() - 2, row("eta_err", f(r.eta_err, 5), "first order"));
+        rows.insert(
+            rows.len() - 2,
+            row("eta_err", f(r.eta_err, 5), "first order"),
+        );
     }
     print_rows("flowsift galaxy", &rows);
     println!();

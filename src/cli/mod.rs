@@ -1,11 +1,14 @@
 //! Subcommands, one file each, and the flag groups they share.
 
+mod config;
 mod demo;
 mod distances;
 mod frames;
 mod galaxy;
+mod mock;
 mod options;
 mod table;
+mod velocities;
 
 use clap::{Parser, Subcommand};
 
@@ -21,7 +24,14 @@ pub struct Cli {
 pub enum Command {
     /// One object: sky position, heliocentric redshift and a distance → CMB-frame redshift,
     /// cosmological redshift, peculiar velocity and errors.
-    Galaxy(galaxy::GalaxyArgs),
+    Galaxy(Box<galaxy::GalaxyArgs>),
+    /// A catalogue in, every row out with CMB-frame redshift, cosmological redshift,
+    /// peculiar velocity, errors and a status.
+    Velocities(Box<velocities::VelocitiesArgs>),
+    /// Run files: a commented example, or their JSON Schema.
+    Config(config::ConfigArgs),
+    /// Mock catalogues from a known flow, with truth columns.
+    Mock(Box<mock::MockArgs>),
     /// FLRW distances (D_C, D_M, D_L, D_A, μ) at given redshifts.
     Distances(distances::DistancesArgs),
     /// The rest-frame apices and cosmology presets flowsift knows, with their sources.
@@ -32,7 +42,10 @@ pub enum Command {
 
 pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
-        Command::Galaxy(a) => galaxy::run(a),
+        Command::Galaxy(a) => galaxy::run(*a),
+        Command::Velocities(a) => velocities::run(*a),
+        Command::Config(a) => config::run(a),
+        Command::Mock(a) => mock::run(*a),
         Command::Distances(a) => distances::run(a),
         Command::Frames(a) => frames::run(a),
         Command::Demo(a) => demo::run(a),

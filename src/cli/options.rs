@@ -15,22 +15,52 @@ pub struct CosmologyFlags {
     #[arg(long, value_name = "NAME", help_heading = "Cosmology")]
     pub preset: Option<String>,
     /// Hubble constant, km/s/Mpc.
-    #[arg(long, value_name = "H", allow_negative_numbers = true, help_heading = "Cosmology")]
+    #[arg(
+        long,
+        value_name = "H",
+        allow_negative_numbers = true,
+        help_heading = "Cosmology"
+    )]
     pub h0: Option<f64>,
     /// Matter density Ω_m.
-    #[arg(long = "omega-m", value_name = "OM", allow_negative_numbers = true, help_heading = "Cosmology")]
+    #[arg(
+        long = "omega-m",
+        value_name = "OM",
+        allow_negative_numbers = true,
+        help_heading = "Cosmology"
+    )]
     pub omega_m: Option<f64>,
     /// Dark-energy density Ω_de; omitted means flat (Ω_de = 1 − Ω_m − Ω_r).
-    #[arg(long = "omega-de", value_name = "ODE", allow_negative_numbers = true, help_heading = "Cosmology")]
+    #[arg(
+        long = "omega-de",
+        value_name = "ODE",
+        allow_negative_numbers = true,
+        help_heading = "Cosmology"
+    )]
     pub omega_de: Option<f64>,
     /// Radiation density Ω_r (default 0: radiation off).
-    #[arg(long = "omega-r", value_name = "OR", allow_negative_numbers = true, help_heading = "Cosmology")]
+    #[arg(
+        long = "omega-r",
+        value_name = "OR",
+        allow_negative_numbers = true,
+        help_heading = "Cosmology"
+    )]
     pub omega_r: Option<f64>,
     /// Dark-energy equation of state today, CPL w0 (default −1).
-    #[arg(long, value_name = "W0", allow_negative_numbers = true, help_heading = "Cosmology")]
+    #[arg(
+        long,
+        value_name = "W0",
+        allow_negative_numbers = true,
+        help_heading = "Cosmology"
+    )]
     pub w0: Option<f64>,
     /// CPL wa: w(a) = w0 + wa (1 − a) (default 0).
-    #[arg(long, value_name = "WA", allow_negative_numbers = true, help_heading = "Cosmology")]
+    #[arg(
+        long,
+        value_name = "WA",
+        allow_negative_numbers = true,
+        help_heading = "Cosmology"
+    )]
     pub wa: Option<f64>,
 }
 
@@ -52,7 +82,12 @@ impl CosmologyFlags {
 #[derive(Debug, Clone, Default, Args)]
 pub struct FrameFlags {
     /// Named CMB dipole: planck2018 (default) or cobe-firas. See `flowsift frames`.
-    #[arg(long, value_name = "NAME", conflicts_with = "apex", help_heading = "Rest frame")]
+    #[arg(
+        long,
+        value_name = "NAME",
+        conflicts_with = "apex",
+        help_heading = "Rest frame"
+    )]
     pub dipole: Option<String>,
     /// Your own CMB-frame apex: speed (km/s), Galactic l and b (degrees), e.g. 370,264,48.
     #[arg(long, value_name = "V,L,B", value_parser = parse_apex, allow_negative_numbers = true, help_heading = "Rest frame")]
@@ -87,11 +122,15 @@ impl FrameFlags {
 fn parse_apex(s: &str) -> Result<[f64; 3], String> {
     let parts: Vec<_> = s.split(',').map(str::trim).collect();
     if parts.len() != 3 {
-        return Err(format!("expected three numbers V,L,B (km/s, deg, deg), got '{s}'"));
+        return Err(format!(
+            "expected three numbers V,L,B (km/s, deg, deg), got '{s}'"
+        ));
     }
     let mut out = [0.0f64; 3];
     for (o, p) in out.iter_mut().zip(&parts) {
-        *o = p.parse().map_err(|_| format!("'{p}' in '{s}' is not a number"))?;
+        *o = p
+            .parse()
+            .map_err(|_| format!("'{p}' in '{s}' is not a number"))?;
         if !o.is_finite() {
             return Err(format!("'{p}' in '{s}' is not a finite number"));
         }
@@ -104,10 +143,20 @@ fn parse_apex(s: &str) -> Result<[f64; 3], String> {
 pub struct ConventionFlags {
     /// Luminosity-distance convention: observed (D_L = (1+z_helio) D_M(z_cos), default),
     /// cosmological (D_L = (1+z_cos) D_M(z_cos)) or full (also the source's own motion).
-    #[arg(long = "dl-convention", value_enum, value_name = "NAME", help_heading = "Conventions")]
+    #[arg(
+        long = "dl-convention",
+        value_enum,
+        value_name = "NAME",
+        help_heading = "Conventions"
+    )]
     pub dl_convention: Option<DlConventionArg>,
     /// Unit of distances in and out: mpc (default) or mpc-over-h (h⁻¹ Mpc).
-    #[arg(long = "length-unit", value_enum, value_name = "UNIT", help_heading = "Conventions")]
+    #[arg(
+        long = "length-unit",
+        value_enum,
+        value_name = "UNIT",
+        help_heading = "Conventions"
+    )]
     pub length_unit: Option<LengthUnitArg>,
     /// Intrinsic velocity dispersion σ_* added in quadrature to velocity errors, km/s.
     #[arg(long = "sigma-star", value_name = "KM_S", help_heading = "Conventions")]
@@ -143,4 +192,3 @@ impl ConventionFlags {
         }
     }
 }
-

@@ -42,6 +42,8 @@
 //! truth columns (and every other object's draws) unchanged. Changing this order changes
 //! every mock for a given seed.
 
+pub mod table;
+
 use rand::{Rng, SeedableRng};
 use rand_chacha::ChaCha8Rng;
 use rand_distr::StandardNormal;
@@ -497,11 +499,12 @@ pub fn generate(
 mod tests {
     use super::*;
 
-    /// σ_μ of a fractional error: μ = (5/ln 10) ln D + const, so σ_μ = (5/ln 10) σ_lnD.
+    /// σ_μ of a fractional error: μ = (5/ln 10) ln D + const, so σ_μ = (5/ln 10) σ_lnD;
+    /// for σ_lnD = 0.2 that is 1/ln 10 = log10(e).
     #[test]
     fn fractional_sigma_mu() {
         let s = DistanceError::Fractional(0.2).sigma_mu();
-        assert!((s - 0.434_294_481_903_251_8).abs() < 1e-15, "{s}");
+        assert!((s - std::f64::consts::LOG10_E).abs() < 1e-15, "{s}");
         assert_eq!(DistanceError::Magnitudes(0.15).sigma_mu(), 0.15);
     }
 

@@ -302,6 +302,10 @@ pub struct Cosmology {
     u_max: f64,
     /// First redshift where E² ≤ 0, if any below the requested maximum.
     no_expansion: Option<(f64, f64)>,
+    /// Largest u up to which (1+z) D_M grows (the luminosity-distance inverse is unique).
+    u_lum_limit: f64,
+    /// Largest u up to which D_M/(1+z) grows (below the angular-diameter maximum).
+    u_ang_limit: f64,
 }
 
 impl Cosmology {
@@ -375,7 +379,7 @@ impl Cosmology {
             return Err(PhysicsError::NoExpansion { z, e2 });
         }
         let u_max = (dc.len() - 1) as f64 * h;
-        Ok(Self {
+        let mut c = Self {
             omega_k: params.omega_k(),
             params,
             d_h,
@@ -385,7 +389,33 @@ impl Cosmology {
             h,
             u_max,
             no_expansion,
-        })
+            u_lum_limit: u_max,
+            u_ang_limit: u_max,
+        };
+        c.u_lum_limit = c.increasing_limit(&|u| c.luminosity_at_u(u));
+        c.u_ang_limit = c.increasing_limit(&|u| c.angular_at_u(u));
+        Ok(c)
+    }
+
+    /// (1+z) D_M and its u-derivative.
+    #[inline]
+    fn luminosity_at_u(&self, u: f64) -> (f64, f64) {
+        let (dc, dcu) = self.dc_at_u(u);
+        let a = u.exp();
+        let dm = self.transverse_from_comoving(dc);
+        (a * dm, a * dm + a * self.transverse_derivative(dc) * dcu)
+    }
+
+    /// D_M/(1+z) and its u-derivative.
+    #[inline]
+    fn angular_at_u(&self, u: f64) -> (f64, f64) {
+        let (dc, dcu) = self.dc_at_u(u);
+        let ia = (-u).exp();
+        let dm = self.transverse_from_comoving(dc);
+        (
+            ia * dm,
+            -ia * dm + ia * self.transverse_derivative(dc) * dcu,
+        )
     }
 
     /// The parameters.
@@ -595,31 +625,56 @@ impl Cosmology {
         acc
     }
 
-    /// Solve g(u) = target for u in [lo, hi] where g increases; `g` returns value and
-    /// derivative. Safeguarded Newton: a Newton step that leaves the bracket is replaced by
-    /// bisection.
+    /// Solve g(u) = target for u in [0, u_hi] where g increases; `g` returns value and
+    /// derivative. The cell holding the root is found by bisection over the table nodes,
+    /// then safeguarded Newton runs inside that cell (a step leaving the bracket is replaced
+    /// by bisection), so a solve costs a dozen node look-ups and two or three Newton steps.
     fn solve_increasing(
         &self,
         g: impl Fn(f64) -> (f64, f64),
         target: f64,
-        mut lo: f64,
-        mut hi: f64,
+        u_hi: f64,
         what: &'static str,
     ) -> Result<f64, PhysicsError> {
-        let (glo, _) = g(lo);
-        let (ghi, _) = g(hi);
-        if !(target >= glo && target <= ghi) {
+        let (ghi, _) = g(u_hi);
+        let (g0, _) = g(0.0);
+        if !(target >= g0 && target <= ghi) {
             return Err(PhysicsError::DistanceOutOfReach {
                 what,
                 distance: target,
-                z_max: hi.exp_m1(),
+                z_max: u_hi.exp_m1(),
             });
         }
-        // Initial guess: linear in the bracket, refined below.
-        let mut u = lo + (hi - lo) * ((target - glo) / (ghi - glo)).clamp(0.0, 1.0);
-        for _ in 0..200 {
+        // Bisection over node indices (the last cell may be partial when u_hi < u_max).
+        let n_hi = ((u_hi / self.h).floor() as usize).min(self.dc.len() - 1);
+        let (mut i_lo, mut i_hi) = (0usize, n_hi);
+        while i_hi - i_lo > 1 {
+            let mid = (i_lo + i_hi) / 2;
+            if g(mid as f64 * self.h).0 <= target {
+                i_lo = mid;
+            } else {
+                i_hi = mid;
+            }
+        }
+        let mut lo = i_lo as f64 * self.h;
+        let mut hi = if g(i_hi as f64 * self.h).0 >= target {
+            i_hi as f64 * self.h
+        } else {
+            u_hi
+        };
+        let (glo, _) = g(lo);
+        let (gh, _) = g(hi);
+        let mut u = if gh > glo {
+            lo + (hi - lo) * ((target - glo) / (gh - glo)).clamp(0.0, 1.0)
+        } else {
+            lo
+        };
+        for _ in 0..100 {
             let (v, dv) = g(u);
             let f = v - target;
+            if f == 0.0 {
+                return Ok(u);
+            }
             if f > 0.0 {
                 hi = u;
             } else {
@@ -629,7 +684,9 @@ impl Cosmology {
             if !(next > lo && next < hi) {
                 next = 0.5 * (lo + hi);
             }
-            if (next - u).abs() <= 1e-15 * (1.0 + u.abs()) || hi - lo <= 1e-16 {
+            if (next - u).abs() <= 4.0 * f64::EPSILON * (1.0 + u.abs())
+                || hi - lo <= 4.0 * f64::EPSILON
+            {
                 return Ok(next);
             }
             u = next;
@@ -640,13 +697,7 @@ impl Cosmology {
     /// Redshift at which the comoving distance is `dc` Mpc.
     pub fn z_from_comoving(&self, dc: f64) -> Result<f64, PhysicsError> {
         check_distance("comoving distance", dc)?;
-        let u = self.solve_increasing(
-            |u| self.dc_at_u(u),
-            dc,
-            0.0,
-            self.u_max,
-            "comoving distance",
-        )?;
+        let u = self.solve_increasing(|u| self.dc_at_u(u), dc, self.u_max, "comoving distance")?;
         Ok(u.exp_m1())
     }
 
@@ -659,14 +710,12 @@ impl Cosmology {
     /// Redshift at which (1+z) D_M(z) equals `dl` Mpc (the FLRW luminosity distance).
     pub fn z_from_luminosity(&self, dl: f64) -> Result<f64, PhysicsError> {
         check_distance("luminosity distance", dl)?;
-        let g = |u: f64| {
-            let (dc, dcu) = self.dc_at_u(u);
-            let a = u.exp();
-            let dm = self.transverse_from_comoving(dc);
-            (a * dm, a * dm + a * self.transverse_derivative(dc) * dcu)
-        };
-        let hi = self.increasing_limit(&g);
-        let u = self.solve_increasing(g, dl, 0.0, hi, "luminosity distance")?;
+        let u = self.solve_increasing(
+            |u| self.luminosity_at_u(u),
+            dl,
+            self.u_lum_limit,
+            "luminosity distance",
+        )?;
         Ok(u.exp_m1())
     }
 
@@ -674,38 +723,23 @@ impl Cosmology {
     /// the lower branch (below the redshift where D_A peaks).
     pub fn z_from_angular_diameter(&self, da: f64) -> Result<f64, PhysicsError> {
         check_distance("angular-diameter distance", da)?;
-        let g = |u: f64| {
-            let (dc, dcu) = self.dc_at_u(u);
-            let ia = (-u).exp();
-            let dm = self.transverse_from_comoving(dc);
-            (
-                ia * dm,
-                -ia * dm + ia * self.transverse_derivative(dc) * dcu,
-            )
-        };
-        let hi = self.increasing_limit(&g);
         let u = self.solve_increasing(
-            g,
+            |u| self.angular_at_u(u),
             da,
-            0.0,
-            hi,
+            self.u_ang_limit,
             "angular-diameter distance (beyond the D_A maximum)",
         )?;
         Ok(u.exp_m1())
     }
 
-    /// Largest u up to which g keeps increasing (g′ > 0 from 0), located by bisection.
+    /// Largest u up to which g keeps increasing (g′ > 0 from 0): the first node where the
+    /// derivative turns, refined by bisection. Run once per cosmology.
     fn increasing_limit(&self, g: &impl Fn(f64) -> (f64, f64)) -> f64 {
-        if g(self.u_max).1 > 0.0 && self.is_increasing_throughout(g) {
-            return self.u_max;
-        }
-        // First node where the derivative turns, then bisect inside the cell.
         let n = self.dc.len() - 1;
-        let mut i = 1;
-        while i <= n && g(i as f64 * self.h).1 > 0.0 {
-            i += 1;
-        }
-        let (mut lo, mut hi) = ((i - 1) as f64 * self.h, (i.min(n)) as f64 * self.h);
+        let Some(i) = (1..=n).find(|&i| g(i as f64 * self.h).1 <= 0.0) else {
+            return self.u_max;
+        };
+        let (mut lo, mut hi) = ((i - 1) as f64 * self.h, i as f64 * self.h);
         for _ in 0..80 {
             let mid = 0.5 * (lo + hi);
             if g(mid).1 > 0.0 {
@@ -715,12 +749,6 @@ impl Cosmology {
             }
         }
         lo
-    }
-
-    fn is_increasing_throughout(&self, g: &impl Fn(f64) -> (f64, f64)) -> bool {
-        (0..self.dc.len())
-            .step_by(8)
-            .all(|i| g(i as f64 * self.h).1 > 0.0)
     }
 }
 
@@ -806,8 +834,8 @@ mod tests {
     #[test]
     fn einstein_de_sitter_closed_form() {
         let c = Cosmology::new(CosmologyParams::flat_lcdm(70.0, 1.0)).unwrap();
-        for z in [0.01, 0.5, 3.0, 15.0] {
-            let exact = 2.0 * c.hubble_distance() * (1.0 - 1.0 / (1.0 + z as f64).sqrt());
+        for z in [0.01f64, 0.5, 3.0, 15.0] {
+            let exact = 2.0 * c.hubble_distance() * (1.0 - 1.0 / (1.0 + z).sqrt());
             assert!((c.comoving_distance(z).unwrap() - exact).abs() / exact < 1e-13);
         }
     }

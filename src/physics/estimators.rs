@@ -147,112 +147,110 @@ struct CosmologicalSolution {
     d_l: f64,
 }
 
-fn solve_cosmological(
-    cosmo: &Cosmology,
-    obs: &Observation,
-    convention: DlConvention,
-) -> Result<CosmologicalSolution, PhysicsError> {
-    let d = obs.distance;
+/// D_L (Mpc) and dD_L/dq for luminosity-type inputs (μ or D_L).
+fn luminosity_input(d: &Distance) -> Result<(f64, f64), PhysicsError> {
     if !d.value.is_finite() {
         return Err(PhysicsError::NotFinite {
             quantity: "distance",
             value: d.value,
         });
     }
+    match d.kind {
+        DistanceKind::Mu => {
+            let dl = luminosity_distance_of(d.value);
+            Ok((dl, dl * LN10 / 5.0))
+        }
+        DistanceKind::Dl | DistanceKind::Dc if d.value <= 0.0 => Err(PhysicsError::NotPositive {
+            quantity: "distance",
+            value: d.value,
+        }),
+        DistanceKind::Dl => Ok((d.value, 1.0)),
+        _ => Ok((f64::NAN, f64::NAN)),
+    }
+}
+
+/// The cosmological redshift implied by the observation's distance under `convention`
+/// (see the module documentation), without derivatives: the fast path for Monte Carlo.
+pub fn cosmological_redshift(
+    cosmo: &Cosmology,
+    obs: &Observation,
+    convention: DlConvention,
+) -> Result<f64, PhysicsError> {
+    let d = obs.distance;
+    let (d_l, _) = luminosity_input(&d)?;
+    let zh1 = obs.z_helio.one_plus();
+    let zc1 = obs.z_cmb.one_plus();
+    match d.kind {
+        DistanceKind::Mu | DistanceKind::Dl => match convention {
+            DlConvention::Cosmological => cosmo.z_from_luminosity(d_l),
+            DlConvention::Observed => cosmo.z_from_transverse(d_l / zh1),
+            DlConvention::Full => cosmo.z_from_angular_diameter(d_l / (zh1 * zc1)),
+        },
+        DistanceKind::Dc => cosmo.z_from_comoving(d.value),
+        DistanceKind::Eta => cosmo
+            .z_from_comoving(cosmo.comoving_distance(obs.z_cmb.value())? * 10f64.powf(-d.value)),
+    }
+}
+
+fn solve_cosmological(
+    cosmo: &Cosmology,
+    obs: &Observation,
+    convention: DlConvention,
+) -> Result<CosmologicalSolution, PhysicsError> {
+    let d = obs.distance;
+    let z = cosmological_redshift(cosmo, obs, convention)?;
+    let (d_l, dl_dq) = luminosity_input(&d)?;
     let zh1 = obs.z_helio.one_plus();
     let zc1 = obs.z_cmb.one_plus();
     let d_h = cosmo.hubble_distance();
-    // dD_M/dz at z (through D_C).
-    let dm_and_slope = |z: f64| -> Result<(f64, f64), PhysicsError> {
-        let dc = cosmo.comoving_distance(z)?;
-        let dm = cosmo.transverse_from_comoving(dc);
-        let ddm_ddc = cosmo.transverse_derivative(dc);
-        Ok((dm, ddm_ddc * d_h / cosmo.efunc(z)))
-    };
-    // Luminosity-type inputs: D_L and dD_L/dq.
-    let (d_l, dl_dq) = match d.kind {
-        DistanceKind::Mu => {
-            let dl = luminosity_distance_of(d.value);
-            (dl, dl * LN10 / 5.0)
-        }
-        DistanceKind::Dl => {
-            if d.value <= 0.0 {
-                return Err(PhysicsError::NotPositive {
-                    quantity: "luminosity distance",
-                    value: d.value,
-                });
-            }
-            (d.value, 1.0)
-        }
-        _ => (f64::NAN, f64::NAN),
-    };
-    match d.kind {
+    let dc = cosmo.comoving_distance(z)?;
+    let dm = cosmo.transverse_from_comoving(dc);
+    // dD_M/dz = dD_M/dD_C · D_H/E.
+    let dm_z = cosmo.transverse_derivative(dc) * d_h / cosmo.efunc(z);
+    let dc_z = d_h / cosmo.efunc(z);
+    let (dz_dq, dz_dzh, dz_dzc, d_l) = match d.kind {
         DistanceKind::Mu | DistanceKind::Dl => match convention {
-            DlConvention::Cosmological => {
-                let z = cosmo.z_from_luminosity(d_l)?;
-                let (dm, dm_z) = dm_and_slope(z)?;
-                let g_z = dm + (1.0 + z) * dm_z;
-                Ok(CosmologicalSolution {
-                    z_cos: z,
-                    dz_dq: dl_dq / g_z,
-                    dz_dzh: 0.0,
-                    dz_dzc: 0.0,
-                    d_l,
-                })
-            }
+            // G = (1+z) D_M = D_L.
+            DlConvention::Cosmological => (dl_dq / (dm + (1.0 + z) * dm_z), 0.0, 0.0, d_l),
+            // G = D_M = D_L/(1+z_h).
             DlConvention::Observed => {
                 let target = d_l / zh1;
-                let z = cosmo.z_from_transverse(target)?;
-                let (_, dm_z) = dm_and_slope(z)?;
-                Ok(CosmologicalSolution {
-                    z_cos: z,
-                    dz_dq: dl_dq / zh1 / dm_z,
-                    dz_dzh: -target / zh1 / dm_z,
-                    dz_dzc: 0.0,
-                    d_l,
-                })
+                (dl_dq / zh1 / dm_z, -target / zh1 / dm_z, 0.0, d_l)
             }
+            // G = D_M/(1+z) = D_L/((1+z_h)(1+z_cmb)).
             DlConvention::Full => {
                 let target = d_l / (zh1 * zc1);
-                let z = cosmo.z_from_angular_diameter(target)?;
-                let (dm, dm_z) = dm_and_slope(z)?;
                 let g_z = -dm / ((1.0 + z) * (1.0 + z)) + dm_z / (1.0 + z);
-                Ok(CosmologicalSolution {
-                    z_cos: z,
-                    dz_dq: dl_dq / (zh1 * zc1) / g_z,
-                    dz_dzh: -target / zh1 / g_z,
-                    dz_dzc: -target / zc1 / g_z,
+                (
+                    dl_dq / (zh1 * zc1) / g_z,
+                    -target / zh1 / g_z,
+                    -target / zc1 / g_z,
                     d_l,
-                })
+                )
             }
         },
-        DistanceKind::Dc => {
-            let z = cosmo.z_from_comoving(d.value)?;
-            let g_z = d_h / cosmo.efunc(z);
-            Ok(CosmologicalSolution {
-                z_cos: z,
-                dz_dq: 1.0 / g_z,
-                dz_dzh: 0.0,
-                dz_dzc: 0.0,
-                d_l: cosmo.luminosity_distance(z)?,
-            })
-        }
+        // G = D_C = d.
+        DistanceKind::Dc => (1.0 / dc_z, 0.0, 0.0, (1.0 + z) * dm),
+        // G = D_C = D_C(z_cmb) 10^−η.
         DistanceKind::Eta => {
             let zc = obs.z_cmb.value();
-            let dc_obs = cosmo.comoving_distance(zc)?;
             let ratio = 10f64.powf(-d.value);
-            let target = dc_obs * ratio;
-            let z = cosmo.z_from_comoving(target)?;
-            let g_z = d_h / cosmo.efunc(z);
-            Ok(CosmologicalSolution {
-                z_cos: z,
-                dz_dq: -target * LN10 / g_z,
-                dz_dzh: 0.0,
-                dz_dzc: ratio * d_h / cosmo.efunc(zc) / g_z,
-                d_l: cosmo.luminosity_distance(z)?,
-            })
+            let target = cosmo.comoving_distance(zc)? * ratio;
+            (
+                -target * LN10 / dc_z,
+                0.0,
+                ratio * d_h / cosmo.efunc(zc) / dc_z,
+                (1.0 + z) * dm,
+            )
         }
-    }
+    };
+    Ok(CosmologicalSolution {
+        z_cos: z,
+        dz_dq,
+        dz_dzh,
+        dz_dzc,
+        d_l,
+    })
 }
 
 /// The exact peculiar velocity of one object, with first-order errors.

@@ -7,8 +7,8 @@ use serde::Serialize;
 use super::constants::C_KM_S;
 use super::cosmology::{Cosmology, LengthUnit};
 use super::estimators::{
-    low_redshift_velocity, peculiar_velocity, watkins_feldman_velocity, Distance, DistanceKind, EstimatorOptions,
-    Observation,
+    low_redshift_velocity, peculiar_velocity, watkins_feldman_velocity, Distance, DistanceKind,
+    EstimatorOptions, Observation,
 };
 use super::redshift::{Cmb, Heliocentric, Redshift};
 use super::restframe::{legacy_additive, Boost, BoostMethod};
@@ -65,7 +65,10 @@ pub struct ObjectResult {
 }
 
 /// Derive everything for one object.
-pub fn evaluate(ctx: &ObjectContext<'_>, input: &ObjectInput) -> Result<ObjectResult, PhysicsError> {
+pub fn evaluate(
+    ctx: &ObjectContext<'_>,
+    input: &ObjectInput,
+) -> Result<ObjectResult, PhysicsError> {
     let icrs = Direction::<Icrs>::from_lon_lat_deg(input.ra_deg, input.dec_deg)?;
     let gal = ctx.rotations.icrs_to_galactic.apply(&icrs);
     let sg = ctx.rotations.galactic_to_supergalactic.apply(&gal);

@@ -1,0 +1,286 @@
+//! `flowsift velocities`: a catalogue in, the same rows out with CMB-frame redshifts,
+//! cosmological redshifts, peculiar velocities, errors and a status.
+
+use std::io::IsTerminal;
+use std::path::PathBuf;
+use std::sync::Mutex;
+
+use anyhow::anyhow;
+use clap::{Args, ValueEnum};
+use indicatif::{ProgressBar, ProgressStyle};
+
+use flowsift::physics::estimators::DistanceKind;
+use flowsift::plan::{AngleUnit, ColumnChoice, ErrorChoice, InputChoice, RedshiftUnit, RunConfig};
+use flowsift::run::{run_velocities, RunSummary, Stage, VelocityRequest};
+
+use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
+
+/// Derive peculiar velocities for every row of a catalogue.
+#[derive(Debug, Args)]
+#[command(
+    after_help = "Examples:\n  flowsift velocities survey.fits -o survey_pv.fits\n  flowsift velocities cat.csv -o out.parquet --z-column cz --z-unit cz --distance-column DM --distance-kind mu\n  flowsift velocities cat.csv -o out.csv --config run.toml --monte-carlo 1000 --seed 7"
+)]
+pub struct VelocitiesArgs {
+    /// Input catalogue: .fits/.fit/.fits.gz, .csv, .tsv or .parquet.
+    pub input: PathBuf,
+    /// Output catalogue (format by extension). Never the input; an existing file needs --force.
+    #[arg(short, long)]
+    pub output: PathBuf,
+    /// Run file (TOML) with any of the settings below; flags override it.
+    #[arg(long, value_name = "RUN.toml")]
+    pub config: Option<PathBuf>,
+    /// Replace an existing output.
+    #[arg(long)]
+    pub force: bool,
+    /// FITS extension to read, by EXTNAME or index.
+    #[arg(long, value_name = "NAME|INDEX")]
+    pub hdu: Option<String>,
+    #[command(flatten)]
+    pub columns: ColumnFlags,
+    #[command(flatten)]
+    pub cosmology: CosmologyFlags,
+    #[command(flatten)]
+    pub frame: FrameFlags,
+    #[command(flatten)]
+    pub conventions: ConventionFlags,
+    /// Monte Carlo draws per object; adds v_pec_mc_median, v_pec_mc_p16, v_pec_mc_p84.
+    #[arg(long = "monte-carlo", value_name = "N", help_heading = "Errors")]
+    pub monte_carlo: Option<usize>,
+    /// Seed of the Monte Carlo draws (same seed, same output, any thread count).
+    #[arg(long, value_name = "S", help_heading = "Errors")]
+    pub seed: Option<u64>,
+    /// Print the summary as JSON.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// Column-mapping flags.
+#[derive(Debug, Clone, Default, Args)]
+pub struct ColumnFlags {
+    /// Right-ascension column (default ra).
+    #[arg(long = "ra-column", value_name = "NAME", help_heading = "Columns")]
+    pub ra: Option<String>,
+    /// Declination column (default dec).
+    #[arg(long = "dec-column", value_name = "NAME", help_heading = "Columns")]
+    pub dec: Option<String>,
+    /// Unit of ra/dec: deg, rad or sexagesimal (default: deg, or sexagesimal for text).
+    #[arg(
+        long = "angle-unit",
+        value_enum,
+        value_name = "UNIT",
+        help_heading = "Columns"
+    )]
+    pub angle_unit: Option<AngleArg>,
+    /// Heliocentric redshift column (default z_helio, or cz_helio).
+    #[arg(long = "z-column", value_name = "NAME", help_heading = "Columns")]
+    pub z: Option<String>,
+    /// Unit of the redshift column and its error: z or cz (km/s).
+    #[arg(
+        long = "z-unit",
+        value_enum,
+        value_name = "UNIT",
+        help_heading = "Columns"
+    )]
+    pub z_unit: Option<ZUnitArg>,
+    /// Redshift-error column (default z_err, or cz_err).
+    #[arg(long = "z-err-column", value_name = "NAME", help_heading = "Columns")]
+    pub z_err: Option<String>,
+    /// Distance column (default: whichever of mu, dl, dc, eta exists).
+    #[arg(
+        long = "distance-column",
+        value_name = "NAME",
+        help_heading = "Columns"
+    )]
+    pub distance: Option<String>,
+    /// What the distance column holds: mu (mag), dl or dc (Mpc or Mpc/h), eta.
+    #[arg(
+        long = "distance-kind",
+        value_enum,
+        value_name = "KIND",
+        help_heading = "Columns"
+    )]
+    pub distance_kind: Option<KindArg>,
+    /// Distance-error column (default <distance>_err).
+    #[arg(
+        long = "distance-err-column",
+        value_name = "NAME",
+        help_heading = "Columns"
+    )]
+    pub distance_err: Option<String>,
+    /// Group column (default group_id).
+    #[arg(long = "group-column", value_name = "NAME", help_heading = "Columns")]
+    pub group_id: Option<String>,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum AngleArg {
+    Deg,
+    Rad,
+    Sexagesimal,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum ZUnitArg {
+    Z,
+    Cz,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum KindArg {
+    Mu,
+    Dl,
+    Dc,
+    Eta,
+}
+
+impl ColumnFlags {
+    pub fn choice(&self) -> ColumnChoice {
+        ColumnChoice {
+            ra: self.ra.clone(),
+            dec: self.dec.clone(),
+            z: self.z.clone(),
+            z_unit: self.z_unit.map(|u| match u {
+                ZUnitArg::Z => RedshiftUnit::Z,
+                ZUnitArg::Cz => RedshiftUnit::Cz,
+            }),
+            z_err: self.z_err.clone(),
+            distance: self.distance.clone(),
+            distance_kind: self.distance_kind.map(|k| match k {
+                KindArg::Mu => DistanceKind::Mu,
+                KindArg::Dl => DistanceKind::Dl,
+                KindArg::Dc => DistanceKind::Dc,
+                KindArg::Eta => DistanceKind::Eta,
+            }),
+            distance_err: self.distance_err.clone(),
+            group_id: self.group_id.clone(),
+            angle_unit: self.angle_unit.map(|a| match a {
+                AngleArg::Deg => AngleUnit::Deg,
+                AngleArg::Rad => AngleUnit::Rad,
+                AngleArg::Sexagesimal => AngleUnit::Sexagesimal,
+            }),
+        }
+    }
+}
+
+/// Merge the run file (if any) with the flags, flags winning.
+pub fn merged_config(config: &Option<PathBuf>, flags: RunConfig) -> anyhow::Result<RunConfig> {
+    let file = match config {
+        Some(p) => {
+            let text = std::fs::read_to_string(p).map_err(|e| anyhow!("{}: {e}", p.display()))?;
+            RunConfig::from_toml(&text, &p.display().to_string()).map_err(|e| anyhow!(e))?
+        }
+        None => RunConfig::default(),
+    };
+    Ok(file.overlay(&flags))
+}
+
+/// A progress bar on a terminal, nothing otherwise.
+pub struct Progress {
+    bars: Mutex<Vec<(Stage, ProgressBar)>>,
+    total: u64,
+    visible: bool,
+}
+
+impl Progress {
+    pub fn new(total: usize) -> Self {
+        Self {
+            bars: Mutex::new(vec![]),
+            total: total as u64,
+            visible: std::io::stderr().is_terminal(),
+        }
+    }
+
+    pub fn tick(&self, stage: Stage, k: usize) {
+        if !self.visible {
+            return;
+        }
+        let mut bars = self.bars.lock().expect("progress lock");
+        if !bars.iter().any(|(s, _)| *s == stage) {
+            let bar = ProgressBar::new(self.total);
+            let label = match stage {
+                Stage::Derive => "velocities",
+                Stage::MonteCarlo => "monte carlo",
+            };
+            bar.set_style(
+                ProgressStyle::with_template(
+                    "{prefix:>12} {bar:40} {pos}/{len} rows {elapsed_precise}",
+                )
+                .expect("template")
+                .progress_chars("=> "),
+            );
+            bar.set_prefix(label);
+            bars.push((stage, bar));
+        }
+        if let Some((_, b)) = bars.iter().find(|(s, _)| *s == stage) {
+            b.inc(k as u64);
+        }
+    }
+
+    pub fn finish(&self) {
+        for (_, b) in self.bars.lock().expect("progress lock").iter() {
+            b.finish_and_clear();
+        }
+    }
+}
+
+pub fn run(a: VelocitiesArgs) -> anyhow::Result<()> {
+    let flags = RunConfig {
+        input: InputChoice { hdu: a.hdu.clone() },
+        columns: a.columns.choice(),
+        cosmology: a.cosmology.choice(),
+        frame: a.frame.choice(),
+        conventions: a.conventions.choice(),
+        errors: ErrorChoice {
+            monte_carlo: a.monte_carlo,
+            seed: a.seed,
+        },
+    };
+    let config = merged_config(&a.config, flags)?;
+    // The row count is known only after reading; the bar sizes itself on first use.
+    let progress = Progress::new(0);
+    let report = |s: Stage, k: usize| progress.tick(s, k);
+    let command_line = std::env::args().collect::<Vec<_>>().join(" ");
+    let summary = run_velocities(&VelocityRequest {
+        input: a.input.clone(),
+        output: a.output.clone(),
+        config,
+        force: a.force,
+        command_line,
+        progress: &report,
+    })
+    .map_err(|e| anyhow!(e))?;
+    progress.finish();
+    print_summary(&summary, a.json)
+}
+
+pub fn print_summary(s: &RunSummary, json: bool) -> anyhow::Result<()> {
+    if json {
+        println!("{}", serde_json::to_string_pretty(s)?);
+        return Ok(());
+    }
+    println!("read {}", s.input.display());
+    for m in &s.mapping {
+        println!("  {m}");
+    }
+    for (from, to) in &s.renamed {
+        println!("  note: input column {from} kept as {to} (the output column takes its name)");
+    }
+    println!("rows read {:>10}", s.rows_read);
+    println!("rows ok   {:>10}", s.rows_ok);
+    for (name, n) in &s.counts {
+        if *n > 0 && name != "ok" {
+            println!("  {name:<26} {n:>8}");
+        }
+    }
+    if s.monte_carlo_draws > 0 {
+        println!("monte carlo: {} draws per object", s.monte_carlo_draws);
+    }
+    println!("wrote {}", s.output.display());
+    if let Some(p) = &s.sidecar {
+        println!("wrote {}", p.display());
+    }
+    for c in &s.cautions {
+        println!("note: {c}");
+    }
+    Ok(())
+}

@@ -1,0 +1,231 @@
+//! Input columns → contiguous `f64` slices in canonical units, with a status per row.
+
+use polars::prelude::*;
+
+use crate::catalogue::Table;
+use crate::physics::constants::{C_KM_S, DEG};
+use crate::physics::estimators::DistanceKind;
+use crate::physics::sky::{parse_dec_deg, parse_ra_deg};
+use crate::plan::{AngleUnit, ColumnPlan, RedshiftUnit};
+
+use super::status::RowStatus;
+
+/// The columns the physics needs, one value per row. Missing values are NaN, and the row's
+/// status says why.
+#[derive(Debug, Clone)]
+pub struct InputColumns {
+    pub ra_deg: Vec<f64>,
+    pub dec_deg: Vec<f64>,
+    pub z_helio: Vec<f64>,
+    /// 1σ of z_helio; 0 when there is no error column, NaN when the row's entry is missing.
+    pub z_err: Vec<f64>,
+    pub distance: Vec<f64>,
+    pub distance_err: Vec<f64>,
+    pub distance_kind: DistanceKind,
+    pub status: Vec<u8>,
+    /// Rows whose error entries are missing: their errors are reported as null.
+    pub error_missing: Vec<bool>,
+}
+
+/// How one column is read.
+#[derive(Clone, Copy)]
+enum Reading {
+    Number,
+    Ra(Option<AngleUnit>),
+    Dec(Option<AngleUnit>),
+}
+
+/// Read a column as numbers: numeric types are cast, text is parsed entry by entry. Returns
+/// the values (NaN where missing or unparseable) and a per-row code: 0 fine, 1 missing,
+/// 2 unparseable.
+fn read_numbers(table: &Table, name: &str, how: Reading) -> Result<(Vec<f64>, Vec<u8>), String> {
+    let col = table
+        .frame
+        .column(name)
+        .map_err(|e| format!("column {name}: {e}"))?;
+    let n = col.len();
+    let mut values = vec![f64::NAN; n];
+    let mut codes = vec![0u8; n];
+    match col.dtype() {
+        DataType::String => {
+            let ca = col.str().map_err(|e| e.to_string())?;
+            for (i, v) in ca.iter().enumerate() {
+                match v.map(str::trim) {
+                    None | Some("") => codes[i] = 1,
+                    Some(t) => {
+                        let parsed = match how {
+                            Reading::Number => t.parse::<f64>().ok(),
+                            Reading::Ra(Some(AngleUnit::Rad)) => {
+                                t.parse::<f64>().ok().map(|x| x / DEG)
+                            }
+                            Reading::Dec(Some(AngleUnit::Rad)) => {
+                                t.parse::<f64>().ok().map(|x| x / DEG)
+                            }
+                            // Decimal degrees or sexagesimal; range errors are left to the
+                            // physics (position out of range), parse errors are ours.
+                            Reading::Ra(_) => match parse_ra_deg(t) {
+                                Ok(x) => Some(x),
+                                Err(crate::physics::PhysicsError::Unparseable {
+                                    reason, ..
+                                }) if reason.contains("[0, 360]") => t.parse::<f64>().ok(),
+                                Err(_) => None,
+                            },
+                            Reading::Dec(_) => match parse_dec_deg(t) {
+                                Ok(x) => Some(x),
+                                Err(crate::physics::PhysicsError::LatitudeOutOfRange {
+                                    value,
+                                    ..
+                                }) => Some(value),
+                                Err(_) => None,
+                            },
+                        };
+                        match parsed {
+                            Some(x) if x.is_finite() => values[i] = x,
+                            _ => codes[i] = 2,
+                        }
+                    }
+                }
+            }
+        }
+        dt if dt.is_primitive_numeric() => {
+            if let Reading::Ra(Some(AngleUnit::Sexagesimal))
+            | Reading::Dec(Some(AngleUnit::Sexagesimal)) = how
+            {
+                return Err(format!("column {name} holds numbers, but the angle unit is sexagesimal; use --angle-unit deg or rad"));
+            }
+            let f = col
+                .cast(&DataType::Float64)
+                .map_err(|e| format!("column {name}: {e}"))?;
+            let ca = f.f64().map_err(|e| e.to_string())?;
+            let scale = match how {
+                Reading::Ra(Some(AngleUnit::Rad)) | Reading::Dec(Some(AngleUnit::Rad)) => 1.0 / DEG,
+                _ => 1.0,
+            };
+            for (i, v) in ca.iter().enumerate() {
+                match v {
+                    None => codes[i] = 1,
+                    Some(x) if x.is_nan() => codes[i] = 1,
+                    Some(x) if !x.is_finite() => codes[i] = 2,
+                    Some(x) => values[i] = x * scale,
+                }
+            }
+        }
+        DataType::Null => codes.iter_mut().for_each(|c| *c = 1),
+        other => return Err(format!("column {name} has type {other}; expected numbers")),
+    }
+    Ok((values, codes))
+}
+
+fn worst(status: &mut u8, s: RowStatus) {
+    if *status == RowStatus::Ok as u8 {
+        *status = s as u8;
+    }
+}
+
+/// Extract and check the inputs. Errors here are about whole columns (wrong type, a unit
+/// that cannot be right); problems of single rows go into `status`.
+pub fn extract(table: &Table, plan: &ColumnPlan) -> Result<InputColumns, String> {
+    let n = table.frame.height();
+    let mut status = vec![RowStatus::Ok as u8; n];
+    let (ra, ra_c) = read_numbers(table, &plan.ra.column, Reading::Ra(plan.angle_unit))?;
+    let (dec, dec_c) = read_numbers(table, &plan.dec.column, Reading::Dec(plan.angle_unit))?;
+    let (mut z, z_c) = read_numbers(table, &plan.z.column, Reading::Number)?;
+    let (dist, dist_c) = read_numbers(table, &plan.distance.column, Reading::Number)?;
+    let (mut z_err, z_err_c) = match &plan.z_err {
+        Some(r) => read_numbers(table, &r.column, Reading::Number)?,
+        None => (vec![0.0; n], vec![0; n]),
+    };
+    let (mut dist_err, dist_err_c) = match &plan.distance_err {
+        Some(r) => read_numbers(table, &r.column, Reading::Number)?,
+        None => (vec![0.0; n], vec![0; n]),
+    };
+
+    // A redshift column that holds cz (or the reverse) is a whole-column mistake.
+    let mut finite: Vec<f64> = z
+        .iter()
+        .copied()
+        .filter(|x| x.is_finite())
+        .map(f64::abs)
+        .collect();
+    if !finite.is_empty() {
+        let mid = finite.len() / 2;
+        let median = *finite.select_nth_unstable_by(mid, |a, b| a.total_cmp(b)).1;
+        match plan.z_unit {
+            RedshiftUnit::Z if median > 5.0 => {
+                return Err(format!(
+                    "column {} looks like c·z in km/s (median |value| {median:.4}), not a redshift; pass --z-unit cz",
+                    plan.z.column
+                ))
+            }
+            RedshiftUnit::Cz if median < 5.0 => {
+                return Err(format!(
+                    "column {} looks like a redshift (median |value| {median:.4}), not c·z in km/s; pass --z-unit z",
+                    plan.z.column
+                ))
+            }
+            _ => {}
+        }
+    }
+    if plan.z_unit == RedshiftUnit::Cz {
+        z.iter_mut().for_each(|x| *x /= C_KM_S);
+        z_err.iter_mut().for_each(|x| *x /= C_KM_S);
+    }
+
+    let mut error_missing = vec![false; n];
+    for i in 0..n {
+        if z_err_c[i] == 1 || dist_err_c[i] == 1 {
+            error_missing[i] = true;
+            z_err[i] = if z_err_c[i] == 1 { 0.0 } else { z_err[i] };
+            dist_err[i] = if dist_err_c[i] == 1 { 0.0 } else { dist_err[i] };
+        }
+        let s = &mut status[i];
+        for c in [
+            ra_c[i],
+            dec_c[i],
+            z_c[i],
+            dist_c[i],
+            z_err_c[i],
+            dist_err_c[i],
+        ] {
+            if c == 2 {
+                worst(s, RowStatus::UnparseableValue);
+            }
+        }
+        if ra_c[i] == 1 || dec_c[i] == 1 {
+            worst(s, RowStatus::MissingPosition);
+        }
+        if z_c[i] == 1 {
+            worst(s, RowStatus::MissingRedshift);
+        }
+        if dist_c[i] == 1 {
+            worst(s, RowStatus::MissingDistance);
+        }
+        if ra_c[i] == 0 && dec_c[i] == 0 && (dec[i].abs() > 90.0 || !(0.0..=360.0).contains(&ra[i]))
+        {
+            worst(s, RowStatus::PositionOutOfRange);
+        }
+        if z_c[i] == 0 && z[i] <= -1.0 {
+            worst(s, RowStatus::RedshiftOutOfRange);
+        }
+        if dist_c[i] == 0
+            && matches!(plan.distance_kind, DistanceKind::Dl | DistanceKind::Dc)
+            && dist[i] <= 0.0
+        {
+            worst(s, RowStatus::NonPositiveDistance);
+        }
+        if (z_err_c[i] == 0 && z_err[i] < 0.0) || (dist_err_c[i] == 0 && dist_err[i] < 0.0) {
+            worst(s, RowStatus::BadError);
+        }
+    }
+    Ok(InputColumns {
+        ra_deg: ra,
+        dec_deg: dec,
+        z_helio: z,
+        z_err,
+        distance: dist,
+        distance_err: dist_err,
+        distance_kind: plan.distance_kind,
+        status,
+        error_missing,
+    })
+}

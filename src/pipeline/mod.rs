@@ -1,0 +1,264 @@
+//! The columnar, parallel pipeline: input columns in, derived columns and a status per row
+//! out. Rows are processed in chunks on rayon's pool, each chunk writing straight into its
+//! slice of every output column, so no per-row allocation happens in the hot loop.
+
+pub mod inputs;
+pub mod montecarlo;
+pub mod status;
+
+use std::collections::BTreeMap;
+
+use polars::prelude::*;
+use rayon::prelude::*;
+
+use crate::catalogue::{ColumnMeta, Table};
+use crate::physics::estimators::Distance;
+use crate::physics::object::{evaluate, ObjectContext, ObjectInput};
+pub use inputs::{extract, InputColumns};
+pub use status::RowStatus;
+
+/// Rows per parallel work item.
+pub const CHUNK: usize = 8192;
+
+/// Names, units and UCDs of the derived columns, in output order. Names are stable.
+pub const OUTPUT_COLUMNS: &[(&str, &str, &str)] = &[
+    ("glon", "deg", "pos.galactic.lon"),
+    ("glat", "deg", "pos.galactic.lat"),
+    ("sgl", "deg", "pos.supergalactic.lon"),
+    ("sgb", "deg", "pos.supergalactic.lat"),
+    ("sgx", "LENGTH", "pos.cartesian.x"),
+    ("sgy", "LENGTH", "pos.cartesian.y"),
+    ("sgz", "LENGTH", "pos.cartesian.z"),
+    ("z_cmb", "", "src.redshift"),
+    ("z_cos", "", "src.redshift"),
+    ("z_cos_err", "", "stat.error;src.redshift"),
+    ("z_pec", "", "src.redshift"),
+    ("v_pec", "km/s", "phys.veloc"),
+    ("v_pec_err", "km/s", "stat.error;phys.veloc"),
+    ("eta", "", "pos.distance"),
+    ("eta_err", "", "stat.error;pos.distance"),
+    ("d_c", "LENGTH", "pos.distance"),
+];
+
+/// Indices of the error columns in [`OUTPUT_COLUMNS`] (nulled when an input error is missing).
+mod col {
+    pub const Z_COS_ERR: usize = 9;
+    pub const V_PEC_ERR: usize = 12;
+    pub const ETA_ERR: usize = 14;
+}
+
+/// Derived columns (NaN where the row's status is not ok) and the status codes.
+#[derive(Debug, Clone)]
+pub struct Derived {
+    pub columns: Vec<Vec<f64>>,
+    pub status: Vec<u8>,
+}
+
+impl Derived {
+    /// Column by name.
+    pub fn get(&self, name: &str) -> Option<&[f64]> {
+        OUTPUT_COLUMNS
+            .iter()
+            .position(|c| c.0 == name)
+            .map(|i| self.columns[i].as_slice())
+    }
+
+    /// Set every error column to NaN (written as null): for runs where no error was given,
+    /// so that no one reads a zero as a measured error.
+    pub fn clear_errors(&mut self) {
+        for k in [col::Z_COS_ERR, col::V_PEC_ERR, col::ETA_ERR] {
+            self.columns[k].iter_mut().for_each(|v| *v = f64::NAN);
+        }
+    }
+
+    /// Counts per status, in the order of [`RowStatus::ALL`].
+    pub fn counts(&self) -> BTreeMap<RowStatus, usize> {
+        let mut m = BTreeMap::new();
+        for s in &self.status {
+            *m.entry(RowStatus::from_u8(*s)).or_insert(0) += 1;
+        }
+        m
+    }
+}
+
+/// One parallel work item: first row index, that chunk of every output column, and of the
+/// per-row codes.
+pub(crate) type Chunk<'a, T> = (usize, Vec<&'a mut [f64]>, &'a mut [T]);
+
+/// Split `columns` (all of length n) and `status` into aligned chunks for parallel filling.
+pub(crate) fn chunked<'a, T: Send>(
+    columns: &'a mut [Vec<f64>],
+    status: &'a mut [T],
+) -> Vec<Chunk<'a, T>> {
+    let mut iters: Vec<_> = columns.iter_mut().map(|c| c.chunks_mut(CHUNK)).collect();
+    status
+        .chunks_mut(CHUNK)
+        .enumerate()
+        .map(|(ci, st)| {
+            let slices = iters
+                .iter_mut()
+                .map(|it| it.next().expect("aligned lengths"))
+                .collect();
+            (ci * CHUNK, slices, st)
+        })
+        .collect()
+}
+
+/// Run the physics over every row. `progress` is called with the number of rows done in
+/// each finished chunk.
+pub fn derive(
+    ctx: &ObjectContext<'_>,
+    input: &InputColumns,
+    progress: &(dyn Fn(usize) + Sync),
+) -> Derived {
+    let n = input.status.len();
+    let mut columns = vec![vec![f64::NAN; n]; OUTPUT_COLUMNS.len()];
+    let mut status = input.status.clone();
+    chunked(&mut columns, &mut status)
+        .into_par_iter()
+        .for_each(|(start, mut out, st)| {
+            for j in 0..st.len() {
+                if st[j] != RowStatus::Ok as u8 {
+                    continue;
+                }
+                let i = start + j;
+                let obj = ObjectInput {
+                    ra_deg: input.ra_deg[i],
+                    dec_deg: input.dec_deg[i],
+                    z_helio: input.z_helio[i],
+                    z_err: input.z_err[i],
+                    distance: Distance {
+                        kind: input.distance_kind,
+                        value: input.distance[i],
+                        error: input.distance_err[i],
+                    },
+                };
+                match evaluate(ctx, &obj) {
+                    Ok(r) => {
+                        let values = [
+                            r.glon,
+                            r.glat,
+                            r.sgl,
+                            r.sgb,
+                            r.sgx,
+                            r.sgy,
+                            r.sgz,
+                            r.z_cmb,
+                            r.z_cos,
+                            r.z_cos_err,
+                            r.z_pec,
+                            r.v_pec,
+                            r.v_pec_err,
+                            r.eta,
+                            r.eta_err,
+                            r.d_c,
+                        ];
+                        for (o, v) in out.iter_mut().zip(values) {
+                            o[j] = v;
+                        }
+                        if input.error_missing[i] {
+                            for k in [col::Z_COS_ERR, col::V_PEC_ERR, col::ETA_ERR] {
+                                out[k][j] = f64::NAN;
+                            }
+                        }
+                    }
+                    Err(e) => st[j] = RowStatus::from_physics(&e) as u8,
+                }
+            }
+            progress(st.len());
+        });
+    Derived { columns, status }
+}
+
+/// Add derived columns to the input table. An input column whose name a derived column
+/// takes is kept, renamed `<name>_input`; the renames are returned.
+pub fn assemble(
+    input: &Table,
+    derived: Derived,
+    extra: Vec<(String, Vec<f64>, ColumnMeta)>,
+    length_label: &str,
+) -> Result<(Table, Vec<(String, String)>), String> {
+    let mut frame = input.frame.clone();
+    let mut meta = input.meta.clone();
+    let ok: Vec<bool> = derived
+        .status
+        .iter()
+        .map(|s| *s == RowStatus::Ok as u8)
+        .collect();
+    let mut new_columns: Vec<(String, Vec<f64>, ColumnMeta)> = OUTPUT_COLUMNS
+        .iter()
+        .zip(derived.columns)
+        .map(|((name, unit, ucd), v)| {
+            let unit = if *unit == "LENGTH" {
+                length_label
+            } else {
+                unit
+            };
+            (
+                name.to_string(),
+                v,
+                ColumnMeta {
+                    unit: (!unit.is_empty()).then(|| unit.to_string()),
+                    ucd: Some(ucd.to_string()),
+                },
+            )
+        })
+        .collect();
+    new_columns.extend(extra);
+    let mut renames = vec![];
+    let taken: Vec<String> = new_columns
+        .iter()
+        .map(|c| c.0.clone())
+        .chain(["status".to_string()])
+        .collect();
+    for name in &taken {
+        if frame.column(name).is_ok() {
+            let new_name = format!("{name}_input");
+            frame
+                .rename(name, new_name.as_str().into())
+                .map_err(|e| e.to_string())?;
+            if let Some(m) = meta.remove(name) {
+                meta.insert(new_name.clone(), m);
+            }
+            renames.push((name.clone(), new_name));
+        }
+    }
+    let mut cols: Vec<Column> = Vec::with_capacity(new_columns.len() + 1);
+    for (name, values, m) in new_columns {
+        let ca = Float64Chunked::from_iter_options(
+            name.as_str().into(),
+            values
+                .iter()
+                .zip(&ok)
+                .map(|(v, ok)| (*ok && v.is_finite()).then_some(*v)),
+        );
+        cols.push(ca.into_series().into_column());
+        meta.insert(name, m);
+    }
+    let status = StringChunked::from_iter_values(
+        "status".into(),
+        derived.status.iter().map(|s| RowStatus::from_u8(*s).name()),
+    );
+    cols.push(status.into_series().into_column());
+    meta.insert(
+        "status".into(),
+        ColumnMeta {
+            unit: None,
+            ucd: Some("meta.code.status".into()),
+        },
+    );
+    let frame = frame.hstack(&cols).map_err(|e| e.to_string())?;
+    Ok((Table { frame, meta }, renames))
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn error_column_indices_match_names() {
+        assert_eq!(OUTPUT_COLUMNS[col::Z_COS_ERR].0, "z_cos_err");
+        assert_eq!(OUTPUT_COLUMNS[col::V_PEC_ERR].0, "v_pec_err");
+        assert_eq!(OUTPUT_COLUMNS[col::ETA_ERR].0, "eta_err");
+    }
+}
