@@ -224,6 +224,7 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
         ));
     }
 
+    drop(input);
     let mapping = plan.describe();
     let (out_table, renamed) =
         pipeline::assemble(&table, derived, extra, plan.length_unit.label())?;

@@ -7,27 +7,38 @@ use polars::prelude::*;
 
 use super::{CatalogueError, Table};
 
-/// Read a delimited file with a header line. Lines starting with '#' are comments. Types are
-/// inferred from the whole file, so a column with one non-numeric entry is read as text and
-/// each entry is then checked by the pipeline (giving a per-row status, not a failure).
+/// Rows used to infer column types on the fast path.
+const INFER_ROWS: usize = 10_000;
+
+/// Read a delimited file with a header line. Lines starting with '#' are comments. Column
+/// types are inferred from the first rows; if a later entry does not fit (a stray word in a
+/// number column), the file is read again with types inferred from every row, so that such
+/// a column is read as text and each entry is checked by the pipeline (a per-row status,
+/// not a failure).
 pub fn read_delimited(path: &Path, separator: u8) -> Result<Table, CatalogueError> {
-    let options = CsvReadOptions::default()
-        .with_has_header(true)
-        .with_infer_schema_length(None)
-        .map_parse_options(|p| {
-            p.with_separator(separator)
-                .with_comment_prefix(Some("#"))
-                .with_missing_is_null(true)
-                .with_null_values(Some(NullValues::AllColumns(vec![
-                    "".into(),
-                    "NA".into(),
-                    "null".into(),
-                ])))
-        });
-    let frame = options
-        .try_into_reader_with_file_path(Some(path.to_path_buf()))
-        .and_then(|r| r.finish())
-        .map_err(|e| CatalogueError::read(path, format!("cannot read as delimited text: {e}")))?;
+    let read = |infer: Option<usize>| {
+        CsvReadOptions::default()
+            .with_has_header(true)
+            .with_infer_schema_length(infer)
+            .map_parse_options(|p| {
+                p.with_separator(separator)
+                    .with_comment_prefix(Some("#"))
+                    .with_missing_is_null(true)
+                    .with_null_values(Some(NullValues::AllColumns(vec![
+                        "".into(),
+                        "NA".into(),
+                        "null".into(),
+                    ])))
+            })
+            .try_into_reader_with_file_path(Some(path.to_path_buf()))
+            .and_then(|r| r.finish())
+    };
+    let frame = match read(Some(INFER_ROWS)) {
+        Ok(f) => f,
+        Err(_) => read(None).map_err(|e| {
+            CatalogueError::read(path, format!("cannot read as delimited text: {e}"))
+        })?,
+    };
     Ok(Table {
         frame,
         meta: Default::default(),

@@ -1021,7 +1021,8 @@ struct WriteColumn<'a> {
 }
 
 enum WriteData<'a> {
-    F64(Vec<f64>),
+    /// Borrowed when the column is one contiguous chunk without nulls.
+    F64(std::borrow::Cow<'a, [f64]>),
     F32(Vec<f32>),
     I64(Vec<i64>),
     Bool(Vec<c_char>),
@@ -1074,11 +1075,29 @@ fn prepare_columns(table: &Table) -> Result<Vec<WriteColumn<'_>>, String> {
             let ca = series.f32().map_err(polars_err)?;
             let values = ca.iter().map(|v| v.unwrap_or(f32::NAN)).collect();
             ("1E".to_string(), None, WriteData::F32(values))
+        } else if *dtype == DataType::Float64
+            && series.null_count() == 0
+            && series
+                .f64()
+                .map(|c| c.cont_slice().is_ok())
+                .unwrap_or(false)
+        {
+            let ca = series.f64().map_err(polars_err)?;
+            let slice = ca.cont_slice().map_err(polars_err)?;
+            (
+                "1D".to_string(),
+                None,
+                WriteData::F64(std::borrow::Cow::Borrowed(slice)),
+            )
         } else if dtype.is_float() || *dtype == DataType::Null {
             let cast = series.cast(&DataType::Float64).map_err(polars_err)?;
             let ca = cast.f64().map_err(polars_err)?;
             let values = ca.iter().map(|v| v.unwrap_or(f64::NAN)).collect();
-            ("1D".to_string(), None, WriteData::F64(values))
+            (
+                "1D".to_string(),
+                None,
+                WriteData::F64(std::borrow::Cow::Owned(values)),
+            )
         } else if dtype.is_integer() {
             let cast = series.strict_cast(&DataType::Int64).map_err(|_| {
                 format!(
@@ -1267,106 +1286,75 @@ fn write_table_hdu(
     unsafe { sys::ffrdef(fptr, &mut status) };
     ok(status).map_err(|s| fail("cannot update the table header", s))?;
 
-    let block = file.block_rows().max(1);
-    let mut string_scratch: Vec<u8> = Vec::new();
-    let mut string_cells: Vec<*mut c_char> = Vec::new();
+    // Rows are assembled in memory in the FITS binary-table layout (big-endian, row after
+    // row; FITS Standard 4.0 §7.3.3) and handed to cfitsio as raw bytes, a few MiB at a
+    // time: one call per block instead of one per column and block.
+    let widths: Vec<usize> = columns
+        .iter()
+        .map(|c| match &c.data {
+            WriteData::F64(_) | WriteData::I64(_) => 8,
+            WriteData::F32(_) => 4,
+            WriteData::Bool(_) => 1,
+            WriteData::Str { width, .. } => *width,
+        })
+        .collect();
+    let row_bytes: usize = widths.iter().sum();
+    let block = ((4 << 20) / row_bytes.max(1)).max(1);
+    let mut buffer: Vec<u8> = Vec::new();
     let mut start = 0;
     while start < nrows {
         let n = block.min(nrows - start);
         let end = start + n;
-        let first_row = (start + 1) as i64;
-        for (i, column) in columns.iter().enumerate() {
-            let col = (i + 1) as c_int;
-            // SAFETY (all arms): open handle on the table; each source holds the `n` cells
-            // from `start`, which cfitsio only reads (the `*mut` is the C prototype's).
+        buffer.clear();
+        buffer.resize(n * row_bytes, 0);
+        let mut offset = 0;
+        for (column, width) in columns.iter().zip(&widths) {
+            let cells = buffer[offset..]
+                .chunks_mut(row_bytes)
+                .map(|row| &mut row[..*width]);
             match &column.data {
-                WriteData::F64(v) => unsafe {
-                    sys::ffpcld(
-                        fptr,
-                        col,
-                        first_row,
-                        1,
-                        n as i64,
-                        v[start..end].as_ptr() as *mut f64,
-                        &mut status,
-                    );
-                },
-                WriteData::F32(v) => unsafe {
-                    sys::ffpcle(
-                        fptr,
-                        col,
-                        first_row,
-                        1,
-                        n as i64,
-                        v[start..end].as_ptr() as *mut f32,
-                        &mut status,
-                    );
-                },
-                WriteData::I64(v) => unsafe {
-                    sys::ffpcljj(
-                        fptr,
-                        col,
-                        first_row,
-                        1,
-                        n as i64,
-                        v[start..end].as_ptr() as *mut i64,
-                        &mut status,
-                    );
-                },
-                WriteData::Bool(v) => unsafe {
-                    sys::ffpcnl(
-                        fptr,
-                        col,
-                        first_row,
-                        1,
-                        n as i64,
-                        v[start..end].as_ptr() as *mut c_char,
-                        BOOL_NULL_MARK,
-                        &mut status,
-                    );
-                },
-                WriteData::Str { values, width } => {
-                    let stride = width + 1;
-                    string_scratch.clear();
-                    string_scratch.resize(n * stride, 0);
-                    for (cell, value) in string_scratch
-                        .chunks_exact_mut(stride)
-                        .zip(&values[start..end])
-                    {
-                        if let Some(s) = value {
-                            cell[..s.len()].copy_from_slice(s.as_bytes());
+                WriteData::F64(v) => cells
+                    .zip(&v[start..end])
+                    .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
+                WriteData::F32(v) => cells
+                    .zip(&v[start..end])
+                    .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
+                WriteData::I64(v) => cells
+                    .zip(&v[start..end])
+                    .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
+                // FITS logical: 'T', 'F', or 0 for null.
+                WriteData::Bool(v) => cells.zip(&v[start..end]).for_each(|(c, x)| {
+                    c[0] = match *x {
+                        1 => b'T',
+                        0 => b'F',
+                        _ => 0,
+                    }
+                }),
+                // Strings are padded with blanks (a null is all blanks, read back as null).
+                WriteData::Str { values, .. } => {
+                    cells.zip(&values[start..end]).for_each(|(c, x)| {
+                        c.fill(b' ');
+                        if let Some(s) = x {
+                            c[..s.len()].copy_from_slice(s.as_bytes());
                         }
-                    }
-                    let base = string_scratch.as_mut_ptr();
-                    string_cells.clear();
-                    // SAFETY: each pointer addresses its own NUL-terminated cell.
-                    string_cells
-                        .extend((0..n).map(|k| unsafe { base.add(k * stride) } as *mut c_char));
-                    unsafe {
-                        sys::ffpcls(
-                            fptr,
-                            col,
-                            first_row,
-                            1,
-                            n as i64,
-                            string_cells.as_mut_ptr(),
-                            &mut status,
-                        );
-                    }
+                    })
                 }
             }
-            ok(status).map_err(|s| {
-                fail(
-                    &format!(
-                        "column '{}': cannot write rows {}–{}",
-                        column.name,
-                        start + 1,
-                        end
-                    ),
-                    s,
-                )
-            })?;
+            offset += width;
         }
+        // SAFETY: open handle on the table (the last HDU, no heap, so cfitsio extends it);
+        // `buffer` holds exactly `n` rows of `row_bytes`, which cfitsio only reads.
+        unsafe {
+            sys::ffptbb(
+                fptr,
+                (start + 1) as i64,
+                1,
+                (n * row_bytes) as i64,
+                buffer.as_mut_ptr(),
+                &mut status,
+            )
+        };
+        ok(status).map_err(|s| fail(&format!("cannot write rows {}–{}", start + 1, end), s))?;
         start = end;
     }
     Ok(())

@@ -40,7 +40,7 @@ pub struct GalaxyArgs {
     #[arg(long = "cz-helio", value_name = "KM_S", allow_negative_numbers = true)]
     pub cz_helio: Option<f64>,
     /// 1σ error of the heliocentric redshift.
-    #[arg(long = "z-err", value_name = "Z")]
+    #[arg(long = "z-err", value_name = "Z", allow_negative_numbers = true)]
     pub z_err: Option<f64>,
     /// Distance modulus μ, mag.
     #[arg(
@@ -75,16 +75,36 @@ pub struct GalaxyArgs {
     )]
     pub eta: Option<f64>,
     /// 1σ error of μ, mag.
-    #[arg(long = "mu-err", value_name = "MAG", requires = "mu")]
+    #[arg(
+        long = "mu-err",
+        value_name = "MAG",
+        requires = "mu",
+        allow_negative_numbers = true
+    )]
     pub mu_err: Option<f64>,
     /// 1σ error of --dl.
-    #[arg(long = "dl-err", value_name = "MPC", requires = "dl")]
+    #[arg(
+        long = "dl-err",
+        value_name = "MPC",
+        requires = "dl",
+        allow_negative_numbers = true
+    )]
     pub dl_err: Option<f64>,
     /// 1σ error of --dc.
-    #[arg(long = "dc-err", value_name = "MPC", requires = "dc")]
+    #[arg(
+        long = "dc-err",
+        value_name = "MPC",
+        requires = "dc",
+        allow_negative_numbers = true
+    )]
     pub dc_err: Option<f64>,
     /// 1σ error of --eta.
-    #[arg(long = "eta-err", value_name = "ETA", requires = "eta")]
+    #[arg(
+        long = "eta-err",
+        value_name = "ETA",
+        requires = "eta",
+        allow_negative_numbers = true
+    )]
     pub eta_err: Option<f64>,
     #[command(flatten)]
     pub cosmology: CosmologyFlags,

@@ -24,10 +24,10 @@ pub struct MockArgs {
     #[arg(long, value_name = "NAME")]
     pub scenario: Option<String>,
     /// Number of objects.
-    #[arg(long, value_name = "N")]
+    #[arg(long, value_name = "N", allow_negative_numbers = true)]
     pub n: Option<usize>,
     /// Seed of the random streams.
-    #[arg(long, value_name = "S")]
+    #[arg(long, value_name = "S", allow_negative_numbers = true)]
     pub seed: Option<u64>,
     /// Bulk flow, km/s, Galactic Cartesian (x → l = 0, y → l = 90°, z → NGP).
     #[arg(
@@ -39,25 +39,34 @@ pub struct MockArgs {
     )]
     pub bulk_flow: Option<Vec<f64>>,
     /// Random radial velocity dispersion, km/s.
-    #[arg(long = "sigma-v", value_name = "KM_S")]
+    #[arg(long = "sigma-v", value_name = "KM_S", allow_negative_numbers = true)]
     pub sigma_v: Option<f64>,
     /// Lowest cosmological redshift.
-    #[arg(long = "z-min", value_name = "Z")]
+    #[arg(long = "z-min", value_name = "Z", allow_negative_numbers = true)]
     pub z_min: Option<f64>,
     /// Highest cosmological redshift.
-    #[arg(long = "z-max", value_name = "Z")]
+    #[arg(long = "z-max", value_name = "Z", allow_negative_numbers = true)]
     pub z_max: Option<f64>,
     /// Gaussian error of μ, mag (one population).
-    #[arg(long = "mu-err", value_name = "MAG", conflicts_with = "distance_error")]
+    #[arg(
+        long = "mu-err",
+        value_name = "MAG",
+        conflicts_with = "distance_error",
+        allow_negative_numbers = true
+    )]
     pub mu_err: Option<f64>,
     /// Fractional (log-normal) distance error, e.g. 0.2 (one population).
-    #[arg(long = "distance-error", value_name = "F")]
+    #[arg(
+        long = "distance-error",
+        value_name = "F",
+        allow_negative_numbers = true
+    )]
     pub distance_error: Option<f64>,
     /// Gaussian error of z_helio.
-    #[arg(long = "z-err", value_name = "Z")]
+    #[arg(long = "z-err", value_name = "Z", allow_negative_numbers = true)]
     pub z_err: Option<f64>,
     /// Leave out |b| below this many degrees (zone of avoidance).
-    #[arg(long = "sky-cut", value_name = "DEG")]
+    #[arg(long = "sky-cut", value_name = "DEG", allow_negative_numbers = true)]
     pub sky_cut: Option<f64>,
     #[command(flatten)]
     pub cosmology: CosmologyFlags,

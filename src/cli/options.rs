@@ -159,7 +159,12 @@ pub struct ConventionFlags {
     )]
     pub length_unit: Option<LengthUnitArg>,
     /// Intrinsic velocity dispersion σ_* added in quadrature to velocity errors, km/s.
-    #[arg(long = "sigma-star", value_name = "KM_S", help_heading = "Conventions")]
+    #[arg(
+        long = "sigma-star",
+        value_name = "KM_S",
+        help_heading = "Conventions",
+        allow_negative_numbers = true
+    )]
     pub sigma_star: Option<f64>,
 }
 

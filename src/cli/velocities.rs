@@ -44,10 +44,20 @@ pub struct VelocitiesArgs {
     #[command(flatten)]
     pub conventions: ConventionFlags,
     /// Monte Carlo draws per object; adds v_pec_mc_median, v_pec_mc_p16, v_pec_mc_p84.
-    #[arg(long = "monte-carlo", value_name = "N", help_heading = "Errors")]
+    #[arg(
+        long = "monte-carlo",
+        value_name = "N",
+        help_heading = "Errors",
+        allow_negative_numbers = true
+    )]
     pub monte_carlo: Option<usize>,
     /// Seed of the Monte Carlo draws (same seed, same output, any thread count).
-    #[arg(long, value_name = "S", help_heading = "Errors")]
+    #[arg(
+        long,
+        value_name = "S",
+        help_heading = "Errors",
+        allow_negative_numbers = true
+    )]
     pub seed: Option<u64>,
     /// Print the summary as JSON.
     #[arg(long)]

@@ -304,6 +304,10 @@ pub struct Cosmology {
     no_expansion: Option<(f64, f64)>,
     /// Largest u up to which (1+z) D_M grows (the luminosity-distance inverse is unique).
     u_lum_limit: f64,
+    /// (1+z) D_M at the nodes.
+    lum_nodes: Vec<f64>,
+    /// D_M/(1+z) at the nodes.
+    ang_nodes: Vec<f64>,
     /// Largest u up to which D_M/(1+z) grows (below the angular-diameter maximum).
     u_ang_limit: f64,
 }
@@ -391,7 +395,15 @@ impl Cosmology {
             no_expansion,
             u_lum_limit: u_max,
             u_ang_limit: u_max,
+            lum_nodes: vec![],
+            ang_nodes: vec![],
         };
+        c.lum_nodes = (0..c.dc.len())
+            .map(|i| c.luminosity_at_u(i as f64 * h).0)
+            .collect();
+        c.ang_nodes = (0..c.dc.len())
+            .map(|i| c.angular_at_u(i as f64 * h).0)
+            .collect();
         c.u_lum_limit = c.increasing_limit(&|u| c.luminosity_at_u(u));
         c.u_ang_limit = c.increasing_limit(&|u| c.angular_at_u(u));
         Ok(c)
@@ -632,38 +644,35 @@ impl Cosmology {
     fn solve_increasing(
         &self,
         g: impl Fn(f64) -> (f64, f64),
+        nodes: &[f64],
         target: f64,
         u_hi: f64,
         what: &'static str,
     ) -> Result<f64, PhysicsError> {
-        let (ghi, _) = g(u_hi);
-        let (g0, _) = g(0.0);
-        if !(target >= g0 && target <= ghi) {
+        let n_hi = ((u_hi / self.h).floor() as usize).min(nodes.len() - 1);
+        let top = if n_hi as f64 * self.h >= u_hi {
+            nodes[n_hi]
+        } else {
+            g(u_hi).0
+        };
+        if !(target >= nodes[0] && target <= top) {
             return Err(PhysicsError::DistanceOutOfReach {
                 what,
                 distance: target,
                 z_max: u_hi.exp_m1(),
             });
         }
-        // Bisection over node indices (the last cell may be partial when u_hi < u_max).
-        let n_hi = ((u_hi / self.h).floor() as usize).min(self.dc.len() - 1);
-        let (mut i_lo, mut i_hi) = (0usize, n_hi);
-        while i_hi - i_lo > 1 {
-            let mid = (i_lo + i_hi) / 2;
-            if g(mid as f64 * self.h).0 <= target {
-                i_lo = mid;
-            } else {
-                i_hi = mid;
-            }
-        }
+        // The cell holding the root, by binary search over the node values.
+        let i_lo = nodes[..=n_hi]
+            .partition_point(|v| *v <= target)
+            .saturating_sub(1);
         let mut lo = i_lo as f64 * self.h;
-        let mut hi = if g(i_hi as f64 * self.h).0 >= target {
-            i_hi as f64 * self.h
+        let (mut hi, gh) = if i_lo < n_hi {
+            ((i_lo + 1) as f64 * self.h, nodes[i_lo + 1])
         } else {
-            u_hi
+            (u_hi, top)
         };
-        let (glo, _) = g(lo);
-        let (gh, _) = g(hi);
+        let glo = nodes[i_lo];
         let mut u = if gh > glo {
             lo + (hi - lo) * ((target - glo) / (gh - glo)).clamp(0.0, 1.0)
         } else {
@@ -697,7 +706,13 @@ impl Cosmology {
     /// Redshift at which the comoving distance is `dc` Mpc.
     pub fn z_from_comoving(&self, dc: f64) -> Result<f64, PhysicsError> {
         check_distance("comoving distance", dc)?;
-        let u = self.solve_increasing(|u| self.dc_at_u(u), dc, self.u_max, "comoving distance")?;
+        let u = self.solve_increasing(
+            |u| self.dc_at_u(u),
+            &self.dc,
+            dc,
+            self.u_max,
+            "comoving distance",
+        )?;
         Ok(u.exp_m1())
     }
 
@@ -712,6 +727,7 @@ impl Cosmology {
         check_distance("luminosity distance", dl)?;
         let u = self.solve_increasing(
             |u| self.luminosity_at_u(u),
+            &self.lum_nodes,
             dl,
             self.u_lum_limit,
             "luminosity distance",
@@ -725,6 +741,7 @@ impl Cosmology {
         check_distance("angular-diameter distance", da)?;
         let u = self.solve_increasing(
             |u| self.angular_at_u(u),
+            &self.ang_nodes,
             da,
             self.u_ang_limit,
             "angular-diameter distance (beyond the D_A maximum)",

@@ -5,6 +5,7 @@
 //! mix-up would be a bug). Nothing in this module reads files, prints or exits; the catalogue
 //! edges and the command line sit outside it.
 
+pub mod chebyshev;
 pub mod constants;
 pub mod cosmology;
 pub mod error;

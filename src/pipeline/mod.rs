@@ -225,13 +225,19 @@ pub fn assemble(
     }
     let mut cols: Vec<Column> = Vec::with_capacity(new_columns.len() + 1);
     for (name, values, m) in new_columns {
-        let ca = Float64Chunked::from_iter_options(
-            name.as_str().into(),
-            values
-                .iter()
-                .zip(&ok)
-                .map(|(v, ok)| (*ok && v.is_finite()).then_some(*v)),
-        );
+        // Move the buffer when every value stands; otherwise mark the gaps as nulls.
+        let complete = values.iter().zip(&ok).all(|(v, ok)| *ok && v.is_finite());
+        let ca = if complete {
+            Float64Chunked::from_vec(name.as_str().into(), values)
+        } else {
+            Float64Chunked::from_iter_options(
+                name.as_str().into(),
+                values
+                    .iter()
+                    .zip(&ok)
+                    .map(|(v, ok)| (*ok && v.is_finite()).then_some(*v)),
+            )
+        };
         cols.push(ca.into_series().into_column());
         meta.insert(name, m);
     }

@@ -1,0 +1,31 @@
+//! The committed JSON Schema of run files must match the Rust types it is generated from.
+//! Regenerate with: FLOWSIFT_UPDATE_SCHEMAS=1 cargo test --test schemas
+
+use std::path::PathBuf;
+
+use flowsift::plan::{RunConfig, EXAMPLE_CONFIG};
+
+#[test]
+fn run_config_schema_is_current() {
+    let path = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("schemas/run-config.schema.json");
+    let generated = RunConfig::json_schema();
+    if std::env::var_os("FLOWSIFT_UPDATE_SCHEMAS").is_some() {
+        std::fs::write(&path, &generated).unwrap();
+    }
+    let committed = std::fs::read_to_string(&path).unwrap_or_default();
+    assert!(
+        committed == generated,
+        "schemas/run-config.schema.json is stale; regenerate with FLOWSIFT_UPDATE_SCHEMAS=1 cargo test --test schemas"
+    );
+}
+
+/// The schema names every section of the example run file.
+#[test]
+fn schema_covers_example_sections() {
+    let schema: serde_json::Value = serde_json::from_str(&RunConfig::json_schema()).unwrap();
+    let props = schema["properties"].as_object().unwrap();
+    for line in EXAMPLE_CONFIG.lines().filter(|l| l.starts_with('[')) {
+        let section = line.trim_matches(['[', ']']);
+        assert!(props.contains_key(section), "{section} missing from schema");
+    }
+}
