@@ -286,7 +286,9 @@ mod tests {
     use super::*;
 
     use crate::physics::cosmology::{Cosmology, CosmologyParams, LengthUnit};
-    use crate::physics::estimators::{cosmological_redshift, Distance, EstimatorOptions, Observation};
+    use crate::physics::estimators::{
+        cosmological_redshift, Distance, EstimatorOptions, Observation,
+    };
     use crate::physics::restframe::{default_apex, Boost};
     use crate::physics::sky::SkyRotations;
 
@@ -295,13 +297,20 @@ mod tests {
     #[test]
     fn fast_path_matches_exact_draws() {
         let cosmology = Cosmology::new(CosmologyParams::flat_lcdm(70.0, 0.3)).unwrap();
-        for convention in [DlConvention::Observed, DlConvention::Cosmological, DlConvention::Full] {
+        for convention in [
+            DlConvention::Observed,
+            DlConvention::Cosmological,
+            DlConvention::Full,
+        ] {
             let ctx = ObjectContext {
                 cosmology: &cosmology,
                 rotations: SkyRotations::default(),
                 cmb: Boost::new(&default_apex("cmb")).unwrap(),
                 method: BoostMethod::Exact,
-                options: EstimatorOptions { convention, sigma_star_km_s: 0.0 },
+                options: EstimatorOptions {
+                    convention,
+                    sigma_star_km_s: 0.0,
+                },
                 length_unit: LengthUnit::Mpc,
             };
             for (kind, values, errors) in [
@@ -327,25 +336,43 @@ mod tests {
                 for i in 0..3 {
                     let mut rng = ChaCha8Rng::seed_from_u64(42);
                     rng.set_stream(i as u64);
-                    let gal = ctx.rotations.icrs_to_galactic.apply(&Direction::<Icrs>::from_lon_lat_deg(input.ra_deg[i], input.dec_deg[i]).unwrap());
+                    let gal = ctx.rotations.icrs_to_galactic.apply(
+                        &Direction::<Icrs>::from_lon_lat_deg(input.ra_deg[i], input.dec_deg[i])
+                            .unwrap(),
+                    );
                     let mut v = vec![];
                     for _ in 0..draws {
                         let gz: f64 = StandardNormal.sample(&mut rng);
                         let gq: f64 = StandardNormal.sample(&mut rng);
-                        let zh = Redshift::<Heliocentric>::new(input.z_helio[i] + input.z_err[i] * gz).unwrap();
+                        let zh =
+                            Redshift::<Heliocentric>::new(input.z_helio[i] + input.z_err[i] * gz)
+                                .unwrap();
                         let zc = ctx.cmb.from_heliocentric(zh, &gal);
                         let value = match kind {
                             DistanceKind::Mu | DistanceKind::Eta => values[i] + errors[i] * gq,
                             _ => values[i] * (errors[i] / values[i] * gq).exp(),
                         };
-                        let obs = Observation { z_helio: zh, z_cmb: zc, z_err: 0.0, distance: Distance { kind, value, error: 0.0 } };
+                        let obs = Observation {
+                            z_helio: zh,
+                            z_cmb: zc,
+                            z_err: 0.0,
+                            distance: Distance {
+                                kind,
+                                value,
+                                error: 0.0,
+                            },
+                        };
                         if let Ok(z) = cosmological_redshift(&cosmology, &obs, convention) {
                             v.push(doppler_velocity_of(zc.one_plus() / (1.0 + z) - 1.0));
                         }
                     }
                     let q = quantiles(&mut v, &[0.158_655_253_931_457, 0.5, 0.841_344_746_068_543]);
-                    for (got, want) in [(mc.p16[i], q[0]), (mc.median[i], q[1]), (mc.p84[i], q[2])] {
-                        assert!((got - want).abs() < 1e-4, "{convention:?} {kind:?} object {i}: {got} vs {want}");
+                    for (got, want) in [(mc.p16[i], q[0]), (mc.median[i], q[1]), (mc.p84[i], q[2])]
+                    {
+                        assert!(
+                            (got - want).abs() < 1e-4,
+                            "{convention:?} {kind:?} object {i}: {got} vs {want}"
+                        );
                     }
                     assert_eq!(mc.failed[i] as usize, draws - v.len());
                 }

@@ -16,7 +16,10 @@ use flowsift::pipeline::{derive, montecarlo, InputColumns};
 
 fn inputs(n: usize) -> (Cosmology, InputColumns) {
     let cosmology = Cosmology::new(CosmologyParams::flat_lcdm(70.0, 0.3)).unwrap();
-    let spec = MockSpec { n, ..MockSpec::demo_survey() };
+    let spec = MockSpec {
+        n,
+        ..MockSpec::demo_survey()
+    };
     let cmb = Boost::new(&default_apex("cmb")).unwrap();
     let m = generate(&spec, &cosmology, &cmb, DlConvention::Observed).unwrap();
     let input = InputColumns {
@@ -39,10 +42,20 @@ fn benches(c: &mut Criterion) {
     let mut g = c.benchmark_group("inversion");
     g.throughput(Throughput::Elements(targets.len() as u64));
     g.bench_function("z_from_comoving", |b| {
-        b.iter(|| targets.iter().map(|d| cosmology.z_from_comoving(*d).unwrap()).sum::<f64>())
+        b.iter(|| {
+            targets
+                .iter()
+                .map(|d| cosmology.z_from_comoving(*d).unwrap())
+                .sum::<f64>()
+        })
     });
     g.bench_function("z_from_luminosity", |b| {
-        b.iter(|| targets.iter().map(|d| cosmology.z_from_luminosity(*d).unwrap()).sum::<f64>())
+        b.iter(|| {
+            targets
+                .iter()
+                .map(|d| cosmology.z_from_luminosity(*d).unwrap())
+                .sum::<f64>()
+        })
     });
     g.finish();
 
@@ -59,7 +72,9 @@ fn benches(c: &mut Criterion) {
             length_unit: LengthUnit::Mpc,
         };
         g.throughput(Throughput::Elements(n as u64));
-        g.bench_with_input(BenchmarkId::new("derive", n), &n, |b, _| b.iter(|| derive(&ctx, &input, &|_| {})));
+        g.bench_with_input(BenchmarkId::new("derive", n), &n, |b, _| {
+            b.iter(|| derive(&ctx, &input, &|_| {}))
+        });
         if n == 10_000 {
             g.throughput(Throughput::Elements((n * 1000) as u64));
             g.bench_with_input(BenchmarkId::new("monte_carlo_1000_draws", n), &n, |b, _| {
