@@ -47,6 +47,7 @@
 //! * [`physics`] — pure functions: sky frames, rest frames, redshifts, cosmology, estimators.
 
 pub mod catalogue;
+pub mod flow;
 pub mod mock;
 pub mod physics;
 pub mod pipeline;

@@ -506,7 +506,31 @@ fn legacy_additive_is_named_and_flagged() {
     assert!(j["cautions"].to_string().contains("Legacy additive"));
 }
 
+/// The README's first command: the demo leaves its outputs and finds the injected truth.
 #[test]
 fn demo_runs() {
-    flowsift().arg("demo").assert().success();
+    let dir = tempfile::tempdir().unwrap();
+    let out = flowsift()
+        .args(["demo", "--out-dir"])
+        .arg(dir.path())
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = String::from_utf8(out.stdout).unwrap();
+    assert!(text.contains("rows ok         3000"), "{text}");
+    assert!(text.contains("injected outliers flagged"), "{text}");
+    assert!(text.contains("ΛCDM expectation"), "{text}");
+    for f in [
+        "lantern_velocities.fits",
+        "lantern_velocities.csv",
+        "lantern_velocities.csv.provenance.json",
+        "lantern_velocities.fits.bulkflow.json",
+        "lantern_velocities.flow.fits",
+    ] {
+        assert!(dir.path().join(f).exists(), "{f} missing");
+    }
 }

@@ -53,6 +53,8 @@ fn noiseless(n: usize) -> MockSpec {
                 distance_error: DistanceError::Magnitudes(0.0),
             },
         ],
+        outlier_fraction: 0.0,
+        outlier_offset_mag: [2.5, 4.0],
     }
 }
 
@@ -130,6 +132,7 @@ fn errors_do_not_change_truth() {
     };
     let mut quiet = noisy.clone();
     quiet.z_err = 0.0;
+    quiet.outlier_fraction = 0.0;
     for p in &mut quiet.populations {
         p.distance_error = match p.distance_error {
             DistanceError::Fractional(_) => DistanceError::Fractional(0.0),
@@ -145,6 +148,38 @@ fn errors_do_not_change_truth() {
     assert_eq!(bits(&b.mu), bits(&b.true_mu));
     assert_eq!(bits(&b.z_helio), bits(&b.true_z_helio));
     assert_ne!(bits(&a.mu), bits(&a.true_mu));
+}
+
+/// Injected outliers: the stated fraction (binomial 4σ) with offsets of the stated size;
+/// the truth columns are those of the same mock without outliers (the extra draws come
+/// after the others).
+#[test]
+fn injected_outliers() {
+    let spec = MockSpec {
+        n: 5000,
+        outlier_fraction: 0.05,
+        ..MockSpec::demo_survey()
+    };
+    let with = make(&spec, DlConvention::Observed);
+    let without = make(
+        &MockSpec {
+            outlier_fraction: 0.0,
+            ..spec.clone()
+        },
+        DlConvention::Observed,
+    );
+    assert_eq!(bits(&with.true_v_pec), bits(&without.true_v_pec));
+    let k = with.true_outlier.iter().filter(|x| **x).count() as f64;
+    let sd = (5000.0f64 * 0.05 * 0.95).sqrt();
+    assert!((k - 250.0).abs() < 4.0 * sd, "{k}");
+    for i in 0..with.len() {
+        let d = with.mu[i] - without.mu[i];
+        if with.true_outlier[i] {
+            assert!((2.5..=4.0).contains(&d.abs()), "{d}");
+        } else {
+            assert_eq!(d, 0.0);
+        }
+    }
 }
 
 /// (2) With every error zero, the estimator inverts the forward model exactly: from
@@ -343,6 +378,7 @@ fn distance_modulus_scatter_per_population() {
     let spec = MockSpec {
         n: 20_000,
         seed: 99,
+        outlier_fraction: 0.0,
         ..MockSpec::demo_survey()
     };
     let cat = make(&spec, DlConvention::Observed);
@@ -467,6 +503,8 @@ fn invalid_specs_are_rejected() {
             "populations",
             MockSpec {
                 populations: vec![],
+                outlier_fraction: 0.0,
+                outlier_offset_mag: [2.5, 4.0],
                 ..good.clone()
             },
         ),

@@ -65,6 +65,13 @@ pub struct MockArgs {
     /// Gaussian error of z_helio.
     #[arg(long = "z-err", value_name = "Z", allow_negative_numbers = true)]
     pub z_err: Option<f64>,
+    /// Fraction of objects given a gross distance error of 2.5–4 mag (injected outliers).
+    #[arg(
+        long = "outlier-fraction",
+        value_name = "F",
+        allow_negative_numbers = true
+    )]
+    pub outlier_fraction: Option<f64>,
     /// Leave out |b| below this many degrees (zone of avoidance).
     #[arg(long = "sky-cut", value_name = "DEG", allow_negative_numbers = true)]
     pub sky_cut: Option<f64>,
@@ -98,6 +105,8 @@ fn base_spec(scenario: &Option<String>) -> anyhow::Result<MockSpec> {
                 fraction: 1.0,
                 distance_error: DistanceError::Fractional(0.2),
             }],
+            outlier_fraction: 0.0,
+            outlier_offset_mag: [2.5, 4.0],
         },
     })
 }
@@ -124,6 +133,9 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
     }
     if let Some(e) = a.z_err {
         spec.z_err = e;
+    }
+    if let Some(f) = a.outlier_fraction {
+        spec.outlier_fraction = f;
     }
     if let Some(c) = a.sky_cut {
         spec.zone_of_avoidance_deg = Some(c);

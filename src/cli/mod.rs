@@ -7,6 +7,7 @@ mod frames;
 mod galaxy;
 mod mock;
 mod options;
+mod stages;
 mod table;
 mod velocities;
 
@@ -30,6 +31,16 @@ pub enum Command {
     Velocities(Box<velocities::VelocitiesArgs>),
     /// Run files: a commented example, or their JSON Schema.
     Config(config::ConfigArgs),
+    /// Combine group members: error-weighted mean distance, mean redshift, group velocities.
+    Groups(Box<stages::GroupsArgs>),
+    /// Malmquist-bias correction of the distances, then velocities.
+    Malmquist(Box<stages::MalmquistArgs>),
+    /// Flag outliers in a flowsift output (adds `outlier` and `outlier_reason`).
+    Outliers(Box<stages::OutliersArgs>),
+    /// The maximum-likelihood bulk flow of a flowsift output and its ΛCDM expectation.
+    Bulkflow(Box<stages::BulkFlowArgs>),
+    /// The flow-sample export (supergalactic positions, velocities, errors, flags).
+    Export(Box<stages::ExportArgs>),
     /// Mock catalogues from a known flow, with truth columns.
     Mock(Box<mock::MockArgs>),
     /// FLRW distances (D_C, D_M, D_L, D_A, μ) at given redshifts.
@@ -46,6 +57,11 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Velocities(a) => velocities::run(*a),
         Command::Config(a) => config::run(a),
         Command::Mock(a) => mock::run(*a),
+        Command::Groups(a) => stages::groups(*a),
+        Command::Malmquist(a) => stages::malmquist(*a),
+        Command::Outliers(a) => stages::outliers(*a),
+        Command::Bulkflow(a) => stages::bulkflow(*a),
+        Command::Export(a) => stages::export(*a),
         Command::Distances(a) => distances::run(a),
         Command::Frames(a) => frames::run(a),
         Command::Demo(a) => demo::run(a),

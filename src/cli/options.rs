@@ -197,3 +197,164 @@ impl ConventionFlags {
         }
     }
 }
+
+/// Outlier flags (stand-alone `outliers`, and `velocities --outliers`).
+#[derive(Debug, Clone, Default, Args)]
+pub struct OutlierFlags {
+    /// Residual threshold about the bulk flow, in σ (default 3.5).
+    #[arg(
+        id = "outlier_threshold",
+        long = "outlier-threshold",
+        value_name = "K",
+        allow_negative_numbers = true,
+        help_heading = "Outliers"
+    )]
+    pub threshold: Option<f64>,
+    /// Neighbours for the consistency test (default 10; 0 turns it off).
+    #[arg(
+        id = "outlier_neighbours",
+        long = "neighbours",
+        value_name = "K",
+        help_heading = "Outliers"
+    )]
+    pub neighbours: Option<usize>,
+    /// Neighbour-consistency threshold, in σ (default 3.5).
+    #[arg(
+        id = "outlier_neighbour_threshold",
+        long = "neighbour-threshold",
+        value_name = "K",
+        allow_negative_numbers = true,
+        help_heading = "Outliers"
+    )]
+    pub neighbour_threshold: Option<f64>,
+    /// Flag |v_pec| above this many km/s (default: no bound).
+    #[arg(
+        id = "outlier_max_speed",
+        long = "max-speed",
+        value_name = "KM_S",
+        allow_negative_numbers = true,
+        help_heading = "Outliers"
+    )]
+    pub max_speed: Option<f64>,
+    /// Flag η outside LOW,HIGH (default -0.6,0.6).
+    #[arg(id = "outlier_eta_range", long = "eta-range", value_name = "LOW,HIGH", value_names = ["LOW", "HIGH"], value_delimiter = ',', num_args = 2, allow_negative_numbers = true, help_heading = "Outliers")]
+    pub eta_range: Option<Vec<f64>>,
+    /// Residual space: eta (default) or velocity.
+    #[arg(
+        id = "outlier_space",
+        long = "outlier-space",
+        value_enum,
+        value_name = "SPACE",
+        help_heading = "Outliers"
+    )]
+    pub space: Option<SpaceArg>,
+    /// σ_* for the outlier fit, km/s (default: fitted).
+    #[arg(
+        id = "outlier_sigma_star",
+        long = "outlier-sigma-star",
+        value_name = "KM_S",
+        allow_negative_numbers = true,
+        help_heading = "Outliers"
+    )]
+    pub sigma_star: Option<f64>,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum SpaceArg {
+    Eta,
+    Velocity,
+}
+
+impl SpaceArg {
+    pub fn space(self) -> flowsift::flow::outliers::FitSpace {
+        match self {
+            SpaceArg::Eta => flowsift::flow::outliers::FitSpace::Eta,
+            SpaceArg::Velocity => flowsift::flow::outliers::FitSpace::Velocity,
+        }
+    }
+}
+
+impl OutlierFlags {
+    pub fn choice(&self) -> flowsift::flow::outliers::OutlierChoice {
+        flowsift::flow::outliers::OutlierChoice {
+            threshold: self.threshold,
+            neighbours: self.neighbours,
+            neighbour_threshold: self.neighbour_threshold,
+            max_speed: self.max_speed,
+            eta_range: self.eta_range.as_ref().map(|v| [v[0], v[1]]),
+            space: self.space.map(SpaceArg::space),
+            sigma_star: self.sigma_star,
+        }
+    }
+}
+
+/// Bulk-flow flags (stand-alone `bulkflow`, and `velocities --bulk-flow`).
+#[derive(Debug, Clone, Default, Args)]
+pub struct BulkFlowFlags {
+    /// Fit space: eta (default) or velocity.
+    #[arg(
+        id = "flow_space",
+        long = "flow-space",
+        value_enum,
+        value_name = "SPACE",
+        help_heading = "Bulk flow"
+    )]
+    pub space: Option<SpaceArg>,
+    /// σ_* of the fit, km/s (default: fitted).
+    #[arg(
+        id = "flow_sigma_star",
+        long = "flow-sigma-star",
+        value_name = "KM_S",
+        allow_negative_numbers = true,
+        help_heading = "Bulk flow"
+    )]
+    pub sigma_star: Option<f64>,
+    /// Use rows flagged as outliers too.
+    #[arg(
+        id = "flow_include_outliers",
+        long = "include-outliers",
+        help_heading = "Bulk flow"
+    )]
+    pub include_outliers: bool,
+    /// Skip the ΛCDM expectation.
+    #[arg(id = "flow_no_lcdm", long = "no-lcdm", help_heading = "Bulk flow")]
+    pub no_lcdm: bool,
+    /// σ8 of the linear power spectrum (default: Planck 2018).
+    #[arg(
+        id = "flow_sigma8",
+        long = "sigma8",
+        value_name = "S8",
+        help_heading = "Bulk flow"
+    )]
+    pub sigma8: Option<f64>,
+    /// Ω_b for the transfer function (default: Planck 2018).
+    #[arg(
+        id = "flow_omega_b",
+        long = "omega-b",
+        value_name = "OB",
+        help_heading = "Bulk flow"
+    )]
+    pub omega_b: Option<f64>,
+    /// Spectral index n_s (default: Planck 2018).
+    #[arg(
+        id = "flow_n_s",
+        long = "n-s",
+        value_name = "NS",
+        help_heading = "Bulk flow"
+    )]
+    pub n_s: Option<f64>,
+}
+
+impl BulkFlowFlags {
+    pub fn choice(&self) -> flowsift::flow::bulk::BulkFlowChoice {
+        flowsift::flow::bulk::BulkFlowChoice {
+            space: self.space.map(SpaceArg::space),
+            sigma_star: self.sigma_star,
+            skip_outliers: self.include_outliers.then_some(false),
+            lcdm: self.no_lcdm.then_some(false),
+            sigma8: self.sigma8,
+            omega_b: self.omega_b,
+            n_s: self.n_s,
+        }
+    }
+}

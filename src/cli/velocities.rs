@@ -9,11 +9,17 @@ use anyhow::anyhow;
 use clap::{Args, ValueEnum};
 use indicatif::{ProgressBar, ProgressStyle};
 
+use flowsift::flow::bulk::BulkFlowChoice;
+use flowsift::flow::groups::GroupChoice;
+use flowsift::flow::outliers::OutlierChoice;
 use flowsift::physics::estimators::DistanceKind;
-use flowsift::plan::{AngleUnit, ColumnChoice, ErrorChoice, InputChoice, RedshiftUnit, RunConfig};
+use flowsift::plan::{
+    AngleUnit, ColumnChoice, ErrorChoice, ExportChoice, InputChoice, MalmquistChoice, RedshiftUnit,
+    RunConfig,
+};
 use flowsift::run::{run_velocities, RunSummary, Stage, VelocityRequest};
 
-use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
+use super::options::{BulkFlowFlags, ConventionFlags, CosmologyFlags, FrameFlags, OutlierFlags};
 
 /// Derive peculiar velocities for every row of a catalogue.
 #[derive(Debug, Args)]
@@ -59,9 +65,89 @@ pub struct VelocitiesArgs {
         allow_negative_numbers = true
     )]
     pub seed: Option<u64>,
+    /// Correct distances for homogeneous Malmquist bias before deriving velocities.
+    #[arg(long, help_heading = "Sample stages")]
+    pub malmquist: bool,
+    /// Correct for Malmquist bias with this radial density profile (table with columns r, n).
+    #[arg(
+        long = "malmquist-profile",
+        value_name = "FILE",
+        help_heading = "Sample stages"
+    )]
+    pub malmquist_profile: Option<String>,
+    /// Combine members sharing a group identifier; the group table goes next to the output.
+    #[arg(long, help_heading = "Sample stages")]
+    pub groups: bool,
+    /// Column marking each group's central member (implies --groups).
+    #[arg(
+        long = "central-column",
+        value_name = "NAME",
+        help_heading = "Sample stages"
+    )]
+    pub central_column: Option<String>,
+    /// Where to write the group table (implies --groups).
+    #[arg(
+        long = "groups-out",
+        value_name = "FILE",
+        help_heading = "Sample stages"
+    )]
+    pub groups_out: Option<String>,
+    /// Flag outliers (on the groups when grouping).
+    #[arg(long, help_heading = "Sample stages")]
+    pub outliers: bool,
+    #[command(flatten)]
+    pub outlier_flags: OutlierFlags,
+    /// Fit the bulk flow and write OUTPUT.bulkflow.json.
+    #[arg(long = "bulk-flow", help_heading = "Sample stages")]
+    pub bulk_flow: bool,
+    #[command(flatten)]
+    pub bulk_flow_flags: BulkFlowFlags,
+    /// Write the flow-sample export to this file.
+    #[arg(long, value_name = "FILE", help_heading = "Sample stages")]
+    pub export: Option<String>,
     /// Print the summary as JSON.
     #[arg(long)]
     pub json: bool,
+}
+
+impl VelocitiesArgs {
+    /// The flags as a run configuration (sections present only where a flag asks for them).
+    pub fn flags_config(&self) -> RunConfig {
+        let outlier_choice = self.outlier_flags.choice();
+        let bulk_choice = self.bulk_flow_flags.choice();
+        RunConfig {
+            input: InputChoice {
+                hdu: self.hdu.clone(),
+            },
+            columns: self.columns.choice(),
+            cosmology: self.cosmology.choice(),
+            frame: self.frame.choice(),
+            conventions: self.conventions.choice(),
+            errors: ErrorChoice {
+                monte_carlo: self.monte_carlo,
+                seed: self.seed,
+            },
+            malmquist: (self.malmquist || self.malmquist_profile.is_some()).then(|| {
+                MalmquistChoice {
+                    method: None,
+                    profile: self.malmquist_profile.clone(),
+                }
+            }),
+            groups: (self.groups || self.central_column.is_some() || self.groups_out.is_some())
+                .then(|| GroupChoice {
+                    central_column: self.central_column.clone(),
+                    output: self.groups_out.clone(),
+                }),
+            outliers: (self.outliers || outlier_choice != OutlierChoice::default())
+                .then_some(outlier_choice),
+            bulk_flow: (self.bulk_flow || bulk_choice != BulkFlowChoice::default())
+                .then_some(bulk_choice),
+            export: self.export.clone().map(|o| ExportChoice {
+                output: Some(o),
+                keep_outliers: None,
+            }),
+        }
+    }
 }
 
 /// Column-mapping flags.
@@ -234,25 +320,23 @@ impl Progress {
 }
 
 pub fn run(a: VelocitiesArgs) -> anyhow::Result<()> {
-    let flags = RunConfig {
-        input: InputChoice { hdu: a.hdu.clone() },
-        columns: a.columns.choice(),
-        cosmology: a.cosmology.choice(),
-        frame: a.frame.choice(),
-        conventions: a.conventions.choice(),
-        errors: ErrorChoice {
-            monte_carlo: a.monte_carlo,
-            seed: a.seed,
-        },
-    };
-    let config = merged_config(&a.config, flags)?;
+    let config = merged_config(&a.config, a.flags_config())?;
+    run_with(&a, config, &a.output)
+}
+
+/// Run with a merged configuration, writing the main output to `output`.
+pub fn run_with(
+    a: &VelocitiesArgs,
+    config: RunConfig,
+    output: &std::path::Path,
+) -> anyhow::Result<()> {
     // The row count is known only after reading; the bar sizes itself on first use.
     let progress = Progress::new(0);
     let report = |s: Stage, k: usize| progress.tick(s, k);
     let command_line = std::env::args().collect::<Vec<_>>().join(" ");
     let summary = run_velocities(&VelocityRequest {
         input: a.input.clone(),
-        output: a.output.clone(),
+        output: output.to_path_buf(),
         config,
         force: a.force,
         command_line,
@@ -288,6 +372,37 @@ pub fn print_summary(s: &RunSummary, json: bool) -> anyhow::Result<()> {
     println!("wrote {}", s.output.display());
     if let Some(p) = &s.sidecar {
         println!("wrote {}", p.display());
+    }
+    if let Some((n, p)) = &s.groups {
+        println!("groups: {n} rows → {}", p.display());
+    }
+    if let Some((per, total)) = &s.outliers {
+        println!("outliers: {total} flagged");
+        for (name, n) in per {
+            println!("  {name:<26} {n:>8}");
+        }
+    }
+    if let Some((b, p)) = &s.bulk_flow {
+        println!(
+            "bulk flow: {:.0} ± {:.0} km/s towards l = {:.1}°, b = {:.1}° ({} objects, {} space, σ_* = {:.0} km/s) → {}",
+            b.amplitude, b.amplitude_err, b.l, b.b, b.n_used, b.fit_space, b.sigma_star, p.display()
+        );
+        if let Some(l) = &b.lcdm {
+            println!(
+                "  ΛCDM expectation per component: ({:.0}, {:.0}, {:.0}) km/s rms; χ² = {:.2} for 3 dof, p = {:.3}",
+                l.lcdm_rms[0], l.lcdm_rms[1], l.lcdm_rms[2], l.chi2, l.probability
+            );
+        }
+    }
+    if let Some((e, p)) = &s.export {
+        println!(
+            "export: {} of {} rows ({} not ok, {} outliers left out) → {}",
+            e.rows_out,
+            e.rows_in,
+            e.not_ok,
+            e.outliers_left_out,
+            p.display()
+        );
     }
     for c in &s.cautions {
         println!("note: {c}");

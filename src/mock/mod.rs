@@ -129,13 +129,25 @@ pub struct MockSpec {
     pub z_err: f64,
     /// The distance-indicator populations; each object is drawn into one.
     pub populations: Vec<Population>,
+    /// Fraction of objects given a gross distance error (injected outliers; default 0).
+    #[serde(default)]
+    pub outlier_fraction: f64,
+    /// Size of an injected error, mag: uniform in [low, high] with a random sign
+    /// (default [2.5, 4.0]).
+    #[serde(default = "default_outlier_offset")]
+    pub outlier_offset_mag: [f64; 2],
+}
+
+fn default_outlier_offset() -> [f64; 2] {
+    [2.5, 4.0]
 }
 
 impl MockSpec {
     /// The invented demonstration survey, the "Lantern Deep Field Survey": 3000 objects,
     /// seed 20261201, a 250 km/s bulk flow towards l = 300°, b = 20°, σ_v = 250 km/s,
     /// 0.003 < z_cos < 0.1, no objects at |b| < 10°, σ_z = 5×10⁻⁵ (15 km/s), 75 %
-    /// Tully–Fisher-like (20 % distances) and 25 % SN Ia-like (0.15 mag). The survey and
+    /// Tully–Fisher-like (20 % distances) and 25 % SN Ia-like (0.15 mag), 1.5 % of objects
+    /// with a gross distance error of 2.5–4 mag (to be flagged as outliers). The survey and
     /// its flow are made up, so the truth is known exactly.
     pub fn demo_survey() -> Self {
         Self {
@@ -160,6 +172,8 @@ impl MockSpec {
                     distance_error: DistanceError::Magnitudes(0.15),
                 },
             ],
+            outlier_fraction: 0.015,
+            outlier_offset_mag: [2.5, 4.0],
         }
     }
 
@@ -171,6 +185,22 @@ impl MockSpec {
                 reason,
             })
         };
+        if !(0.0..=1.0).contains(&self.outlier_fraction) {
+            return bad(
+                "outlier_fraction",
+                format!("must lie in [0, 1], got {}", self.outlier_fraction),
+            );
+        }
+        let [lo, hi] = self.outlier_offset_mag;
+        if !(lo.is_finite() && hi.is_finite() && 0.0 <= lo && lo <= hi) {
+            return bad(
+                "outlier_offset_mag",
+                format!(
+                    "must be [low, high] with 0 ≤ low ≤ high, got {:?}",
+                    self.outlier_offset_mag
+                ),
+            );
+        }
         if self.n == 0 {
             return bad("n", "must be at least 1".into());
         }
@@ -313,6 +343,8 @@ pub struct MockCatalogue {
     pub true_mu: Vec<f64>,
     /// Galactic unit vector of each object (x → l = 0, y → l = 90°, z → NGP).
     pub n_galactic: Vec<[f64; 3]>,
+    /// Whether the object was given an injected gross distance error.
+    pub true_outlier: Vec<bool>,
 }
 
 impl MockCatalogue {
@@ -353,6 +385,7 @@ struct Row {
     d_c: f64,
     mu_true: f64,
     n: [f64; 3],
+    outlier: bool,
 }
 
 /// Make the mock catalogue of `spec` (see the module docs for the forward model).
@@ -406,6 +439,10 @@ pub fn generate(
         let g_v: f64 = rng.sample(StandardNormal);
         let g_z: f64 = rng.sample(StandardNormal);
         let g_mu: f64 = rng.sample(StandardNormal);
+        // 8. Injected outliers: two more draws, after the seven above, so that mocks
+        // without outliers are unchanged.
+        let u_out: f64 = rng.random();
+        let u_off: f64 = rng.random();
 
         // 1. Direction, uniform in solid angle outside the zone of avoidance.
         let sin_b = (sin_zone + (1.0 - sin_zone) * w.abs()).copysign(w);
@@ -444,7 +481,15 @@ pub fn generate(
         };
         let mu_true = distance_modulus_of(d_l);
         let mu_err = sigma_mu[population];
-        let mu = mu_true + mu_err * g_mu;
+        let outlier = u_out < spec.outlier_fraction;
+        let offset = if outlier {
+            let [lo, hi] = spec.outlier_offset_mag;
+            let t = 2.0 * u_off - 1.0;
+            (lo + (hi - lo) * t.abs()).copysign(t)
+        } else {
+            0.0
+        };
+        let mu = mu_true + mu_err * g_mu + offset;
 
         // 7. Position.
         let (ra, dec) = galactic_to_icrs.apply(&n).lon_lat_deg();
@@ -463,6 +508,7 @@ pub fn generate(
             d_c,
             mu_true,
             n: xyz,
+            outlier,
         })
     };
 
@@ -492,6 +538,7 @@ pub fn generate(
         true_d_c: col(|r| r.d_c),
         true_mu: col(|r| r.mu_true),
         n_galactic: rows.iter().map(|r| r.n).collect(),
+        true_outlier: rows.iter().map(|r| r.outlier).collect(),
     })
 }
 

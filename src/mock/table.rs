@@ -16,7 +16,7 @@ fn meta(unit: &str, ucd: &str) -> ColumnMeta {
 
 impl MockCatalogue {
     /// Columns: ra, dec, z_helio, z_err, mu, mu_err, population, then the truth:
-    /// true_z_cos, true_v_pec, true_z_cmb, true_z_helio, true_d_c, true_mu.
+    /// true_z_cos, true_v_pec, true_z_cmb, true_z_helio, true_d_c, true_mu, true_outlier.
     pub fn to_table(&self) -> Table {
         let f = |name: &str, v: &[f64]| Column::new(name.into(), v);
         let columns = vec![
@@ -33,6 +33,7 @@ impl MockCatalogue {
             f("true_z_helio", &self.true_z_helio),
             f("true_d_c", &self.true_d_c),
             f("true_mu", &self.true_mu),
+            Column::new("true_outlier".into(), &self.true_outlier),
         ];
         let frame = DataFrame::new(self.len(), columns).expect("columns of equal length");
         let mut m = std::collections::BTreeMap::new();
@@ -50,6 +51,7 @@ impl MockCatalogue {
             ("true_z_helio", "", "src.redshift"),
             ("true_d_c", "Mpc", "pos.distance"),
             ("true_mu", "mag", "phot.mag.distMod"),
+            ("true_outlier", "", "meta.code.qual"),
         ] {
             m.insert(name.to_string(), meta(unit, ucd));
         }

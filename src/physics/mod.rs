@@ -5,12 +5,15 @@
 //! mix-up would be a bug). Nothing in this module reads files, prints or exits; the catalogue
 //! edges and the command line sit outside it.
 
+pub mod bulkflow;
 pub mod chebyshev;
 pub mod constants;
 pub mod cosmology;
 pub mod error;
 pub mod estimators;
+pub mod malmquist;
 pub mod object;
+pub mod power;
 pub mod redshift;
 pub mod restframe;
 pub mod sky;

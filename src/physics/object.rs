@@ -69,6 +69,16 @@ pub fn evaluate(
     ctx: &ObjectContext<'_>,
     input: &ObjectInput,
 ) -> Result<ObjectResult, PhysicsError> {
+    evaluate_with(ctx, input, None)
+}
+
+/// As [`evaluate`], but with the CMB-frame redshift given (a group's mean redshift) instead
+/// of derived from z_helio; z_helio still enters the `observed` and `full` conventions.
+pub fn evaluate_with(
+    ctx: &ObjectContext<'_>,
+    input: &ObjectInput,
+    z_cmb_given: Option<f64>,
+) -> Result<ObjectResult, PhysicsError> {
     let icrs = Direction::<Icrs>::from_lon_lat_deg(input.ra_deg, input.dec_deg)?;
     let gal = ctx.rotations.icrs_to_galactic.apply(&icrs);
     let sg = ctx.rotations.galactic_to_supergalactic.apply(&gal);
@@ -81,9 +91,10 @@ pub fn evaluate(
             value: input.z_err,
         });
     }
-    let z_cmb = match ctx.method {
-        BoostMethod::Exact => ctx.cmb.from_heliocentric(z_helio, &gal),
-        BoostMethod::LegacyAdditive => legacy_additive(&ctx.cmb, z_helio, &gal)?,
+    let z_cmb = match (z_cmb_given, ctx.method) {
+        (Some(z), _) => Redshift::<Cmb>::new(z)?,
+        (None, BoostMethod::Exact) => ctx.cmb.from_heliocentric(z_helio, &gal),
+        (None, BoostMethod::LegacyAdditive) => legacy_additive(&ctx.cmb, z_helio, &gal)?,
     };
     if z_cmb.value() <= 0.0 {
         return Err(PhysicsError::NotPositive {

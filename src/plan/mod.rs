@@ -7,6 +7,9 @@ pub mod columns;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
+use crate::flow::bulk::BulkFlowChoice;
+use crate::flow::groups::GroupChoice;
+use crate::flow::outliers::OutlierChoice;
 use crate::settings::{ConventionChoice, CosmologyChoice, FrameChoice};
 pub use columns::{AngleUnit, ColumnChoice, ColumnPlan, RedshiftUnit};
 
@@ -45,6 +48,65 @@ impl InputChoice {
     }
 }
 
+/// Which Malmquist correction to apply to the distances before the velocities.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum MalmquistMethod {
+    /// E[r|d] = d exp(3.5 Δ²) (Lynden-Bell et al. 1988).
+    #[default]
+    Homogeneous,
+    /// The general form with a radial density profile n(r) from `profile`.
+    Profile,
+}
+
+/// Malmquist settings (run file `[malmquist]`, or flags).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct MalmquistChoice {
+    /// homogeneous (default) or profile.
+    pub method: Option<MalmquistMethod>,
+    /// CSV/TSV/Parquet/FITS table with columns `r` (Mpc, or the run's length unit) and `n`
+    /// (any normalisation); implies method = profile.
+    pub profile: Option<String>,
+}
+
+impl MalmquistChoice {
+    pub fn overlay(&self, o: &MalmquistChoice) -> MalmquistChoice {
+        MalmquistChoice {
+            method: o.method.or(self.method),
+            profile: o.profile.clone().or_else(|| self.profile.clone()),
+        }
+    }
+}
+
+/// Flow-sample export settings (run file `[export]`, or flags).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ExportChoice {
+    /// Where to write it (default: `<output stem>.flow.<ext>`).
+    pub output: Option<String>,
+    /// Keep rows flagged as outliers (default false; they carry `outlier = true`).
+    pub keep_outliers: Option<bool>,
+}
+
+impl ExportChoice {
+    pub fn overlay(&self, o: &ExportChoice) -> ExportChoice {
+        ExportChoice {
+            output: o.output.clone().or_else(|| self.output.clone()),
+            keep_outliers: o.keep_outliers.or(self.keep_outliers),
+        }
+    }
+}
+
+/// Merge optional sections: present in either means present.
+fn overlay_section<T: Clone>(a: &Option<T>, b: &Option<T>, f: impl Fn(&T, &T) -> T) -> Option<T> {
+    match (a, b) {
+        (Some(x), Some(y)) => Some(f(x, y)),
+        (Some(x), None) => Some(x.clone()),
+        (None, y) => y.clone(),
+    }
+}
+
 /// A run file (TOML): every flag of `flowsift velocities` has its place here.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -61,6 +123,16 @@ pub struct RunConfig {
     pub conventions: ConventionChoice,
     #[serde(default)]
     pub errors: ErrorChoice,
+    /// Present: correct distances for Malmquist bias before deriving velocities.
+    pub malmquist: Option<MalmquistChoice>,
+    /// Present: combine members sharing a group identifier.
+    pub groups: Option<GroupChoice>,
+    /// Present: flag outliers (on the groups when groups are on).
+    pub outliers: Option<OutlierChoice>,
+    /// Present: fit the bulk flow and write it as JSON next to the output.
+    pub bulk_flow: Option<BulkFlowChoice>,
+    /// Present: write the flow-sample export.
+    pub export: Option<ExportChoice>,
 }
 
 impl RunConfig {
@@ -78,6 +150,11 @@ impl RunConfig {
             frame: self.frame.overlay(&flags.frame),
             conventions: self.conventions.overlay(&flags.conventions),
             errors: self.errors.overlay(&flags.errors),
+            malmquist: overlay_section(&self.malmquist, &flags.malmquist, MalmquistChoice::overlay),
+            groups: overlay_section(&self.groups, &flags.groups, GroupChoice::overlay),
+            outliers: overlay_section(&self.outliers, &flags.outliers, OutlierChoice::overlay),
+            bulk_flow: overlay_section(&self.bulk_flow, &flags.bulk_flow, BulkFlowChoice::overlay),
+            export: overlay_section(&self.export, &flags.export, ExportChoice::overlay),
         }
     }
 
@@ -135,6 +212,37 @@ pub const EXAMPLE_CONFIG: &str = r#"# flowsift run file. Every key is optional; 
 [errors]
 # monte_carlo = 1000         # draws per object; percentiles of v_pec are added
 # seed = 1
+
+# Sample stages: each runs when its section is present (uncomment the [header]).
+# [malmquist]
+# method = "homogeneous"     # or "profile" with a density table:
+# profile = "density.csv"    # columns r (Mpc) and n
+
+# [groups]
+# central_column = "is_central"   # a member whose redshift is the group's
+# output = "groups.fits"          # default: <output stem>.groups.<ext>
+
+# [outliers]
+# threshold = 3.5            # residual about the bulk flow, in sigma
+# neighbours = 10            # k nearest neighbours (0: off)
+# neighbour_threshold = 3.5
+# max_speed = 5000.0         # km/s; default: no bound
+# eta_range = [-0.6, 0.6]
+# space = "eta"              # or "velocity"
+# sigma_star = 250.0         # km/s; default: fitted
+
+# [bulk_flow]
+# space = "eta"              # or "velocity"
+# sigma_star = 250.0         # km/s; default: fitted
+# skip_outliers = true
+# lcdm = true                # expectation for the sample's window
+# sigma8 = 0.8102
+# omega_b = 0.049
+# n_s = 0.9665
+
+# [export]
+# output = "flow.parquet"    # default: <output stem>.flow.<ext>
+# keep_outliers = false
 "#;
 
 #[cfg(test)]
@@ -149,7 +257,12 @@ mod tests {
             .lines()
             .map(|l| {
                 let t = l.trim_start();
-                if t.starts_with("# ") && t[2..].contains(" = ") && !t[2..].starts_with("Column") {
+                if t.starts_with("# [") {
+                    t[2..].to_string()
+                } else if t.starts_with("# ")
+                    && t[2..].contains(" = ")
+                    && !t[2..].starts_with("Column")
+                {
                     // Keep only the assignment part before a trailing comment.
                     let body = &t[2..];
                     match body.find("  #") {
@@ -167,6 +280,9 @@ mod tests {
         assert_eq!(c.columns.ra.as_deref(), Some("RAJ2000"));
         assert_eq!(c.errors.monte_carlo, Some(1000));
         assert_eq!(c.frame.apex, Some([369.82, 264.021, 48.253]));
+        assert!(c.malmquist.is_some() && c.groups.is_some() && c.outliers.is_some());
+        assert_eq!(c.bulk_flow.as_ref().and_then(|b| b.sigma8), Some(0.8102));
+        assert_eq!(c.export.and_then(|e| e.keep_outliers), Some(false));
     }
 
     #[test]

@@ -1,5 +1,8 @@
-//! One `velocities` run end to end: read, plan, derive, write, summarise. The command line
-//! and the demo both call this; it never prints (progress goes through a callback).
+//! One `velocities` run end to end: read, plan, derive, the sample stages the run file or
+//! flags ask for, write, summarise. The command line and the demo both call this; it never
+//! prints (progress goes through a callback).
+
+pub mod stages;
 
 use std::path::{Path, PathBuf};
 
@@ -53,6 +56,16 @@ pub struct RunSummary {
     pub monte_carlo_draws: usize,
     /// Sidecar provenance file (CSV/TSV outputs).
     pub sidecar: Option<PathBuf>,
+    /// Columns of an earlier flowsift run that were recomputed.
+    pub replaced: Vec<String>,
+    /// Groups: (number of groups, path of the group table).
+    pub groups: Option<(usize, PathBuf)>,
+    /// Outliers: counts per reason and in all.
+    pub outliers: Option<(Vec<(String, usize)>, usize)>,
+    /// The bulk flow and where its JSON went.
+    pub bulk_flow: Option<(crate::flow::bulk::BulkFlowReport, PathBuf)>,
+    /// The flow-sample export.
+    pub export: Option<(crate::flow::export::ExportSummary, PathBuf)>,
 }
 
 /// Seconds since 1970 → "YYYY-MM-DDThh:mm:ssZ" (proleptic Gregorian, UTC), by the
@@ -134,11 +147,12 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
         ));
     }
 
-    let table = read_input(&req.input, cfg)?;
+    let (table, replaced) = stages::strip_earlier_run(read_input(&req.input, cfg)?);
     let plan = resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit)
         .map_err(|e| format!("{}: {e}", req.input.display()))?;
-    let input =
+    let mut input =
         pipeline::extract(&table, &plan).map_err(|e| format!("{}: {e}", req.input.display()))?;
+    let uncorrected_distance = input.distance.clone();
 
     // The distance table must cover the redshifts in play.
     let z_top = input
@@ -171,9 +185,34 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
         },
         length_unit: plan.length_unit,
     };
+    let mut notes = cautions(&cosmology_choice, &frames, convention);
+    if !replaced.is_empty() {
+        notes.push("The input is a flowsift output: its derived columns were recomputed.".into());
+    }
+    let mut extra: Vec<(String, Vec<f64>, ColumnMeta)> = vec![];
+    if let Some(m) = &cfg.malmquist {
+        let factor = plan.length_unit.from_mpc_factor(cosmology.params());
+        let (f, corrected, note) = stages::apply_malmquist(&mut input, m, &cosmology, factor)?;
+        notes.push(note);
+        extra.push((
+            "malmquist_factor".into(),
+            f,
+            ColumnMeta {
+                unit: None,
+                ucd: Some("arith.factor".into()),
+            },
+        ));
+        extra.push((
+            "distance_malmquist".into(),
+            corrected,
+            ColumnMeta {
+                unit: None,
+                ucd: Some("pos.distance".into()),
+            },
+        ));
+    }
     let derive_progress = |k: usize| (req.progress)(Stage::Derive, k);
     let mut derived = pipeline::derive(&ctx, &input, &derive_progress);
-    let mut notes = cautions(&cosmology_choice, &frames, convention);
     match (
         plan.z_err.is_some(),
         plan.distance_err.is_some(),
@@ -199,7 +238,6 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
     let rows_read = derived.status.len();
     let rows_ok = *counts_map.get(&RowStatus::Ok).unwrap_or(&0);
 
-    let mut extra: Vec<(String, Vec<f64>, ColumnMeta)> = vec![];
     if draws >= 2 {
         let mc_progress = |k: usize| (req.progress)(Stage::MonteCarlo, k);
         let mc = montecarlo::run(&ctx, &input, &derived.status, draws, seed, &mc_progress);
@@ -224,10 +262,92 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
         ));
     }
 
+    // Groups need the members' inputs (uncorrected distances) and derived redshifts.
+    let grouped = match &cfg.groups {
+        Some(gc) => {
+            let mut source = input.clone();
+            source.distance = uncorrected_distance;
+            let (gt, g, note) = stages::group_table(
+                &ctx,
+                &table,
+                &plan,
+                &source,
+                &derived,
+                gc,
+                cfg.malmquist.as_ref(),
+            )?;
+            if let Some(n) = note {
+                notes.push(format!("Groups: {n}"));
+            }
+            Some((gt, g))
+        }
+        None => None,
+    };
     drop(input);
     let mapping = plan.describe();
-    let (out_table, renamed) =
+    let (mut out_table, renamed) =
         pipeline::assemble(&table, derived, extra, plan.length_unit.label())?;
+    let mut group_out = None;
+    if let Some((gt, g)) = grouped {
+        let idx: Vec<i64> = g.group_of.iter().map(|x| *x as i64).collect();
+        out_table.frame = out_table
+            .frame
+            .hstack(&[polars::prelude::Column::new("group_index".into(), idx)])
+            .map_err(|e| e.to_string())?;
+        out_table.meta.insert(
+            "group_index".into(),
+            ColumnMeta {
+                unit: None,
+                ucd: Some("meta.id.parent".into()),
+            },
+        );
+        let path = match cfg.groups.as_ref().and_then(|c| c.output.clone()) {
+            Some(p) => PathBuf::from(p),
+            None => stages::sibling_path(&req.output, "groups"),
+        };
+        notes.push(format!(
+            "Groups: {} groups from {} rows; outliers, bulk flow and export use the group table.",
+            g.key.len(),
+            rows_read
+        ));
+        group_out = Some((gt, path));
+    }
+    // The table the flow stages work on: the groups when there are groups.
+    let mut outlier_summary = None;
+    let mut bulk = None;
+    let mut export = None;
+    {
+        let flow_table: &mut Table = match &mut group_out {
+            Some((gt, _)) => gt,
+            None => &mut out_table,
+        };
+        if let Some(oc) = &cfg.outliers {
+            let settings = oc.resolve()?;
+            let r = stages::add_outliers(flow_table, &cosmology, &settings)?;
+            let (per, total) = r.counts();
+            outlier_summary = Some((
+                per.into_iter().map(|(n, c)| (n.to_string(), c)).collect(),
+                total,
+            ));
+        }
+        if let Some(bc) = &cfg.bulk_flow {
+            let report = stages::bulk_flow_of(flow_table, &cosmology, bc)?;
+            bulk = Some((report, sibling_json(&req.output, "bulkflow")));
+        }
+        if let Some(ec) = &cfg.export {
+            let (t, summary) = crate::flow::export::export_table(
+                flow_table,
+                cosmology.params().little_h(),
+                plan.length_unit == crate::physics::cosmology::LengthUnit::MpcOverH,
+                ec.keep_outliers.unwrap_or(false),
+            )?;
+            let path = match &ec.output {
+                Some(p) => PathBuf::from(p),
+                None => stages::sibling_path(&req.output, "flow"),
+            };
+            export = Some((t, summary, path));
+        }
+    }
 
     let json = |v: &dyn erased::Json| v.to_json();
     let mut provenance = Provenance::default();
@@ -254,18 +374,39 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
     if draws >= 2 {
         add("monte_carlo_seed", seed.to_string());
     }
+    for (k, v) in [
+        ("malmquist", json(&cfg.malmquist)),
+        ("groups", json(&cfg.groups)),
+        ("outliers", json(&cfg.outliers)),
+        ("bulk_flow", json(&cfg.bulk_flow)),
+        ("export", json(&cfg.export)),
+    ] {
+        if v != "null" {
+            add(k, v);
+        }
+    }
     add("cautions", notes.join(" | "));
 
-    write_table(
-        &req.output,
-        &out_table,
-        &provenance,
-        &WriteOptions {
-            force: req.force,
-            protected: vec![req.input.clone()],
-        },
-    )
-    .map_err(|e| e.to_string())?;
+    let options = WriteOptions {
+        force: req.force,
+        protected: vec![req.input.clone()],
+    };
+    write_table(&req.output, &out_table, &provenance, &options).map_err(|e| e.to_string())?;
+    let mut groups_summary = None;
+    if let Some((gt, path)) = &group_out {
+        write_table(path, gt, &provenance, &options).map_err(|e| e.to_string())?;
+        groups_summary = Some((gt.frame.height(), path.clone()));
+    }
+    if let Some((report, path)) = &bulk {
+        let value = serde_json::to_value(report).map_err(|e| e.to_string())?;
+        crate::catalogue::write_json_atomically(path, &value, req.force)
+            .map_err(|e| e.to_string())?;
+    }
+    let mut export_summary = None;
+    if let Some((t, summary, path)) = export {
+        write_table(&path, &t, &provenance, &options).map_err(|e| e.to_string())?;
+        export_summary = Some((summary, path));
+    }
 
     let counts = RowStatus::ALL
         .iter()
@@ -286,7 +427,19 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
             crate::catalogue::Format::Csv | crate::catalogue::Format::Tsv
         )
         .then(|| crate::catalogue::sidecar_path(&req.output)),
+        replaced,
+        groups: groups_summary,
+        outliers: outlier_summary,
+        bulk_flow: bulk,
+        export: export_summary,
     })
+}
+
+/// `<output>.<tag>.json`.
+fn sibling_json(output: &Path, tag: &str) -> PathBuf {
+    let mut s = output.as_os_str().to_owned();
+    s.push(format!(".{tag}.json"));
+    PathBuf::from(s)
 }
 
 mod erased {

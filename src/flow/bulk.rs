@@ -1,0 +1,207 @@
+//! The bulk-flow stage: the maximum-likelihood dipole of a sample (Kaiser 1988), reported in
+//! Galactic, supergalactic and equatorial axes, with the ΛCDM expectation for the sample's
+//! own window (Watkins, Feldman & Hudson 2009) when asked for.
+
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+use crate::physics::bulkflow::{amplitude_direction, BulkFlowFit, FlowData, SigmaStar};
+use crate::physics::cosmology::Cosmology;
+use crate::physics::sky::{Rotation, SkyFrame, SkyRotations};
+
+use super::outliers::{fit_vectors, FitSpace};
+use super::FlowSample;
+
+/// Bulk-flow settings as the user gives them (run file `[bulk_flow]`, or flags).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct BulkFlowChoice {
+    /// Fit space: eta (default) or velocity.
+    pub space: Option<FitSpace>,
+    /// Intrinsic dispersion σ_*, km/s; absent: fitted.
+    pub sigma_star: Option<f64>,
+    /// Leave out rows flagged as outliers (default true).
+    pub skip_outliers: Option<bool>,
+    /// Compute the ΛCDM expectation for the sample's window (default true).
+    pub lcdm: Option<bool>,
+    /// σ8 of the linear power spectrum (default: Planck 2018).
+    pub sigma8: Option<f64>,
+    /// Baryon density Ω_b (default: Planck 2018).
+    pub omega_b: Option<f64>,
+    /// Spectral index n_s (default: Planck 2018).
+    pub n_s: Option<f64>,
+}
+
+impl BulkFlowChoice {
+    pub fn overlay(&self, o: &BulkFlowChoice) -> BulkFlowChoice {
+        BulkFlowChoice {
+            space: o.space.or(self.space),
+            sigma_star: o.sigma_star.or(self.sigma_star),
+            skip_outliers: o.skip_outliers.or(self.skip_outliers),
+            lcdm: o.lcdm.or(self.lcdm),
+            sigma8: o.sigma8.or(self.sigma8),
+            omega_b: o.omega_b.or(self.omega_b),
+            n_s: o.n_s.or(self.n_s),
+        }
+    }
+}
+
+/// A vector and its covariance in one set of axes.
+#[derive(Debug, Clone, Serialize)]
+pub struct AxesReport {
+    pub v: [f64; 3],
+    pub cov: [[f64; 3]; 3],
+}
+
+/// ΛCDM comparison.
+#[derive(Debug, Clone, Serialize)]
+pub struct LcdmComparison {
+    /// Expected rms of each Galactic component of the measured flow from cosmic variance, km/s.
+    pub lcdm_rms: [f64; 3],
+    /// Expected covariance (cosmic variance only), Galactic axes, (km/s)².
+    pub lcdm_cov: [[f64; 3]; 3],
+    /// χ² of the measured flow against zero with covariance = noise + cosmic variance.
+    pub chi2: f64,
+    pub dof: usize,
+    /// P(χ²₃ ≥ chi2).
+    pub probability: f64,
+    pub growth_rate: f64,
+    pub sigma8: f64,
+    /// How the window was computed.
+    pub window: String,
+    pub power_spectrum: String,
+}
+
+/// The report (`flowsift bulkflow --json`).
+#[derive(Debug, Clone, Serialize)]
+pub struct BulkFlowReport {
+    /// Flow in Galactic Cartesian axes (x → l = 0, y → l = 90°, z → NGP), km/s.
+    pub v_galactic: [f64; 3],
+    /// Noise covariance, Galactic axes, (km/s)².
+    pub cov: [[f64; 3]; 3],
+    pub amplitude: f64,
+    /// First-order error of the amplitude (the amplitude itself is biased high when it is
+    /// not many times its error).
+    pub amplitude_err: f64,
+    /// Galactic direction, degrees.
+    pub l: f64,
+    pub b: f64,
+    pub supergalactic: AxesReport,
+    pub equatorial: AxesReport,
+    pub sigma_star: f64,
+    pub sigma_star_fitted: bool,
+    pub n_used: usize,
+    pub fit_space: &'static str,
+    pub chi2: f64,
+    pub lcdm: Option<LcdmComparison>,
+    pub cautions: Vec<String>,
+}
+
+fn rotate<A: SkyFrame, B: SkyFrame>(
+    r: &Rotation<A, B>,
+    v: [f64; 3],
+    cov: [[f64; 3]; 3],
+) -> AxesReport {
+    let m = r.matrix();
+    let v2 = r.apply_vector(v);
+    let mut c2 = [[0.0; 3]; 3];
+    for i in 0..3 {
+        for j in 0..3 {
+            let mut s = 0.0;
+            for a in 0..3 {
+                for b in 0..3 {
+                    s += m[i][a] * cov[a][b] * m[j][b];
+                }
+            }
+            c2[i][j] = s;
+        }
+    }
+    AxesReport { v: v2, cov: c2 }
+}
+
+/// Computes the ΛCDM expectation from a fit, the objects' positions (Mpc) and their κ.
+pub type LcdmHook<'a> =
+    dyn Fn(&BulkFlowFit, &[[f64; 3]], &[f64]) -> Result<LcdmComparison, String> + 'a;
+
+/// Fit the sample's flow; `lcdm` computes the expectation from the fit's weights.
+pub fn bulk_flow(
+    sample: &FlowSample,
+    cosmology: &Cosmology,
+    space: FitSpace,
+    sigma_star: SigmaStar,
+    lcdm: Option<&LcdmHook<'_>>,
+) -> Result<BulkFlowReport, String> {
+    let (y, e, k) = fit_vectors(sample, cosmology, space);
+    let idx: Vec<usize> = (0..sample.len())
+        .filter(|&i| {
+            sample.usable[i]
+                && y[i].is_finite()
+                && e[i].is_finite()
+                && e[i] > 0.0
+                && k[i].is_finite()
+        })
+        .collect();
+    let dirs: Vec<[f64; 3]> = idx.iter().map(|&i| sample.directions[i]).collect();
+    let yy: Vec<f64> = idx.iter().map(|&i| y[i]).collect();
+    let ee: Vec<f64> = idx.iter().map(|&i| e[i]).collect();
+    let kk: Vec<f64> = idx.iter().map(|&i| k[i]).collect();
+    let fit = crate::physics::bulkflow::fit_bulk_flow(
+        &FlowData {
+            directions: &dirs,
+            values: &yy,
+            errors: &ee,
+            kappa: &kk,
+        },
+        sigma_star,
+    )?;
+    let (amplitude, l, b, amplitude_err) = amplitude_direction(fit.v, fit.cov);
+    let rot = SkyRotations::default();
+    let supergalactic = rotate(&rot.galactic_to_supergalactic, fit.v, fit.cov);
+    let equatorial = rotate(&rot.icrs_to_galactic.inverse(), fit.v, fit.cov);
+    // Positions for the window: D_C(z_cmb) r̂ (redshift space, less noisy than distances).
+    let positions: Vec<[f64; 3]> = idx
+        .iter()
+        .map(|&i| {
+            let r = cosmology
+                .comoving_distance(sample.z_cmb[i])
+                .unwrap_or(f64::NAN);
+            let d = sample.directions[i];
+            [d[0] * r, d[1] * r, d[2] * r]
+        })
+        .collect();
+    let lcdm = match lcdm {
+        Some(f) => Some(f(&fit, &positions, &kk)?),
+        None => None,
+    };
+    let mut cautions = vec![
+        format!(
+            "Flow fitted in {} space to {} objects{}; σ_* {} = {:.0} km/s.",
+            space.name(),
+            fit.n_used,
+            if space == FitSpace::Eta { " (κ = ∂η/∂v from the cosmology)" } else { "" },
+            if fit.sigma_star_fitted { "fitted" } else { "fixed" },
+            fit.sigma_star
+        ),
+        "The amplitude of a noisy vector is biased high; compare components, or the χ² against ΛCDM, rather than the amplitude.".into(),
+    ];
+    if space == FitSpace::Velocity {
+        cautions.push("Velocities from log-normal distances have skewed errors; the η fit is the less biased choice.".into());
+    }
+    Ok(BulkFlowReport {
+        v_galactic: fit.v,
+        cov: fit.cov,
+        amplitude,
+        amplitude_err,
+        l,
+        b,
+        supergalactic,
+        equatorial,
+        sigma_star: fit.sigma_star,
+        sigma_star_fitted: fit.sigma_star_fitted,
+        n_used: fit.n_used,
+        fit_space: space.name(),
+        chi2: fit.chi2,
+        lcdm,
+        cautions,
+    })
+}

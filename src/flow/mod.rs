@@ -1,0 +1,12 @@
+//! Sample-level stages on per-object results: group averaging, outlier flags, the bulk flow
+//! with its ΛCDM expectation, and the flow-sample export. They read the columns a
+//! `velocities` run writes, so they run inside that run or alone on its output.
+
+pub mod bulk;
+pub mod export;
+pub mod groups;
+pub mod lcdm;
+pub mod outliers;
+pub mod sample;
+
+pub use sample::FlowSample;
