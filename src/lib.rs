@@ -52,5 +52,6 @@ pub mod mock;
 pub mod physics;
 pub mod pipeline;
 pub mod plan;
+pub mod report;
 pub mod run;
 pub mod settings;

@@ -6,7 +6,7 @@ use anyhow::anyhow;
 use clap::Args;
 
 use flowsift::catalogue::{write_table, Provenance, WriteOptions};
-use flowsift::mock::{generate, DistanceError, MockSpec, Population};
+use flowsift::mock::{DistanceError, MockSpec, Population};
 use flowsift::physics::restframe::Boost;
 
 use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
@@ -72,6 +72,19 @@ pub struct MockArgs {
         allow_negative_numbers = true
     )]
     pub outlier_fraction: Option<f64>,
+    /// Add the radial velocity of this velocity grid (our FITS field file or an x,y,z,vx,vy,vz
+    /// table) at each object's true position.
+    #[arg(long, value_name = "FIELD")]
+    pub field: Option<PathBuf>,
+    /// Axes of the field (when the file does not say).
+    #[arg(long = "field-axes", value_enum, value_name = "AXES")]
+    pub field_axes: Option<super::correct::AxesArg>,
+    /// Length unit of the field (when the file does not say).
+    #[arg(long = "field-unit", value_enum, value_name = "UNIT")]
+    pub field_unit: Option<super::correct::UnitArg>,
+    /// Scale of the field velocities (β), default 1.
+    #[arg(long = "field-beta", value_name = "B", allow_negative_numbers = true)]
+    pub field_beta: Option<f64>,
     /// Leave out |b| below this many degrees (zone of avoidance).
     #[arg(long = "sky-cut", value_name = "DEG", allow_negative_numbers = true)]
     pub sky_cut: Option<f64>,
@@ -160,7 +173,40 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
     let frames = a.frame.choice().resolve().map_err(|e| anyhow!(e))?;
     let convention = a.conventions.choice().dl_convention.unwrap_or_default();
     let boost: Boost<_> = frames.cmb;
-    let mock = generate(&spec, &cosmology, &boost, convention).map_err(|e| anyhow!("{e}"))?;
+    let model = match &a.field {
+        Some(p) => {
+            let flags = super::correct::ModelFlags {
+                field: Some(p.clone()),
+                field_axes: a.field_axes,
+                field_unit: a.field_unit,
+                beta: a.field_beta,
+                ..Default::default()
+            };
+            flags.build(&resolved.params)?.map(|m| m.0)
+        }
+        None => None,
+    };
+    let rot = flowsift::physics::sky::SkyRotations::default();
+    let h = resolved.params.little_h();
+    let radial = |n_gal: [f64; 3], r_mpc: f64| -> Option<f64> {
+        let m = model.as_ref()?;
+        let k = match m
+            .length_unit()
+            .unwrap_or(flowsift::physics::cosmology::LengthUnit::Mpc)
+        {
+            flowsift::physics::cosmology::LengthUnit::Mpc => 1.0,
+            flowsift::physics::cosmology::LengthUnit::MpcOverH => h,
+        };
+        let n = m
+            .axes()
+            .unwrap_or(flowsift::physics::field::FieldAxes::Supergalactic)
+            .from_galactic(&rot, n_gal);
+        m.radial_velocity([n[0] * r_mpc * k, n[1] * r_mpc * k, n[2] * r_mpc * k])
+    };
+    let field: Option<&flowsift::mock::RadialField<'_>> =
+        if model.is_some() { Some(&radial) } else { None };
+    let mock = flowsift::mock::generate_with_field(&spec, &cosmology, &boost, convention, field)
+        .map_err(|e| anyhow!("{e}"))?;
     let table = mock.to_table();
     let mut provenance = Provenance::default();
     provenance.entries.push((
@@ -174,6 +220,11 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
     provenance
         .entries
         .push(("mock_spec".into(), serde_json::to_string(&spec)?));
+    if let Some(p) = &a.field {
+        provenance
+            .entries
+            .push(("field".into(), p.display().to_string()));
+    }
     provenance
         .entries
         .push(("cosmology".into(), serde_json::to_string(&resolved)?));

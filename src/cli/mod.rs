@@ -1,12 +1,15 @@
 //! Subcommands, one file each, and the flag groups they share.
 
 mod config;
+mod correct;
 mod demo;
 mod distances;
+mod field;
 mod frames;
 mod galaxy;
 mod mock;
 mod options;
+mod plot;
 mod stages;
 mod table;
 mod velocities;
@@ -41,6 +44,10 @@ pub enum Command {
     Bulkflow(Box<stages::BulkFlowArgs>),
     /// The flow-sample export (supergalactic positions, velocities, errors, flags).
     Export(Box<stages::ExportArgs>),
+    /// Hubble-diagram redshifts corrected with a velocity-field model (z_cos_model, errors).
+    Correct(Box<correct::CorrectArgs>),
+    /// A velocity-field file sampled from an analytic model.
+    Field(Box<field::FieldArgs>),
     /// Mock catalogues from a known flow, with truth columns.
     Mock(Box<mock::MockArgs>),
     /// FLRW distances (D_C, D_M, D_L, D_A, μ) at given redshifts.
@@ -49,6 +56,8 @@ pub enum Command {
     Frames(frames::FramesArgs),
     /// Run flowsift on the shipped invented survey and print what it finds.
     Demo(demo::DemoArgs),
+    /// Figures and a run report from a flowsift output.
+    Plot(Box<plot::PlotArgs>),
 }
 
 pub fn run(cli: Cli) -> anyhow::Result<()> {
@@ -57,6 +66,8 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Velocities(a) => velocities::run(*a),
         Command::Config(a) => config::run(a),
         Command::Mock(a) => mock::run(*a),
+        Command::Correct(a) => correct::run(*a),
+        Command::Field(a) => field::run(*a),
         Command::Groups(a) => stages::groups(*a),
         Command::Malmquist(a) => stages::malmquist(*a),
         Command::Outliers(a) => stages::outliers(*a),
@@ -65,5 +76,6 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Distances(a) => distances::run(a),
         Command::Frames(a) => frames::run(a),
         Command::Demo(a) => demo::run(a),
+        Command::Plot(a) => plot::run(*a),
     }
 }

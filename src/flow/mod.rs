@@ -3,6 +3,7 @@
 //! `velocities` run writes, so they run inside that run or alone on its output.
 
 pub mod bulk;
+pub mod correct;
 pub mod export;
 pub mod groups;
 pub mod lcdm;

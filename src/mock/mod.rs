@@ -399,6 +399,22 @@ pub fn generate(
     cmb: &Boost<Cmb>,
     convention: DlConvention,
 ) -> Result<MockCatalogue, MockError> {
+    generate_with_field(spec, cosmology, cmb, convention, None)
+}
+
+/// A velocity field for mocks: the radial velocity (km/s) at Galactic unit vector n̂ and
+/// comoving distance r (Mpc); `None` where the field is undefined (it then adds nothing).
+pub type RadialField<'a> = dyn Fn([f64; 3], f64) -> Option<f64> + Sync + 'a;
+
+/// As [`generate`], with the radial velocity of `field` at each object's true position added
+/// to the bulk flow and the random motion.
+pub fn generate_with_field(
+    spec: &MockSpec,
+    cosmology: &Cosmology,
+    cmb: &Boost<Cmb>,
+    convention: DlConvention,
+    field: Option<&RadialField<'_>>,
+) -> Result<MockCatalogue, MockError> {
     spec.validate()?;
     let reach = |e| MockError::OutOfCosmology {
         z_max: spec.z_max,
@@ -464,7 +480,9 @@ pub fn generate(
             .unwrap_or(cumulative.len() - 1);
 
         // 4–5. Velocity and redshifts.
-        let v_pec = bulk[0] * xyz[0] + bulk[1] * xyz[1] + bulk[2] * xyz[2] + spec.sigma_v * g_v;
+        let v_field = field.and_then(|f| f(xyz, d_c)).unwrap_or(0.0);
+        let v_pec =
+            bulk[0] * xyz[0] + bulk[1] * xyz[1] + bulk[2] * xyz[2] + v_field + spec.sigma_v * g_v;
         let z_pec = doppler_redshift(v_pec).map_err(fail)?;
         let z_cos_typed = Redshift::<Cosmological>::new(z_cos).map_err(fail)?;
         let z_cmb = compose_cmb(z_cos_typed, z_pec);

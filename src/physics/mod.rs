@@ -11,6 +11,7 @@ pub mod constants;
 pub mod cosmology;
 pub mod error;
 pub mod estimators;
+pub mod field;
 pub mod malmquist;
 pub mod object;
 pub mod power;

@@ -29,7 +29,7 @@ pub struct InputColumns {
 
 /// How one column is read.
 #[derive(Clone, Copy)]
-enum Reading {
+pub(crate) enum Reading {
     Number,
     Ra(Option<AngleUnit>),
     Dec(Option<AngleUnit>),
@@ -38,7 +38,11 @@ enum Reading {
 /// Read a column as numbers: numeric types are cast, text is parsed entry by entry. Returns
 /// the values (NaN where missing or unparseable) and a per-row code: 0 fine, 1 missing,
 /// 2 unparseable.
-fn read_numbers(table: &Table, name: &str, how: Reading) -> Result<(Vec<f64>, Vec<u8>), String> {
+pub(crate) fn read_numbers(
+    table: &Table,
+    name: &str,
+    how: Reading,
+) -> Result<(Vec<f64>, Vec<u8>), String> {
     let col = table
         .frame
         .column(name)

@@ -143,7 +143,7 @@ impl ColumnPlan {
 }
 
 /// Find a column by exact name, else case-insensitively.
-fn find_name(names: &[String], wanted: &str) -> Option<String> {
+pub(crate) fn find_name(names: &[String], wanted: &str) -> Option<String> {
     names
         .iter()
         .find(|n| *n == wanted)

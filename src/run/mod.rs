@@ -2,6 +2,7 @@
 //! flags ask for, write, summarise. The command line and the demo both call this; it never
 //! prints (progress goes through a callback).
 
+pub mod correct;
 pub mod stages;
 
 use std::path::{Path, PathBuf};

@@ -1,0 +1,247 @@
+//! Figures and a one-file run report from a flowsift output table.
+//!
+//! [`render_all`] draws, from the rows whose `status` is `ok`:
+//! * `hubble_diagram` — μ (or D_C when the table has no `mu`) against z_cmb with the model
+//!   curve of the chosen cosmology, and the residuals from it below;
+//! * `velocity_distance` — v_pec against D_C with error bars and running statistics;
+//! * `sky_galactic` / `sky_supergalactic` — an equal-area (Mollweide) map of v_pec on a
+//!   diverging colour scale, with the bulk-flow and CMB-dipole directions;
+//! * `velocity_pulls` — the histogram of v_pec/σ_v (or (v_pec − true_v_pec)/σ_v for mocks)
+//!   against a unit normal.
+//!
+//! Outliers (`outlier` true) are open green markers in every figure, and each caption says how
+//! many rows were used and left out. Each figure is written as PNG and/or SVG
+//! (1600 × 1000 px by default). PNG text is rendered from the bundled DejaVu Sans (no system
+//! fonts are read); SVG text names the generic `sans-serif` family.
+//!
+//! [`write_report`] writes a single self-contained HTML file: input, settings and
+//! conventions from the provenance, counts per status, outliers per reason, the bulk flow and
+//! its ΛCDM comparison, and every figure embedded.
+//!
+//! Nothing here prints; errors come back as messages naming what failed.
+
+pub mod colour;
+mod data;
+mod figures;
+mod html;
+pub mod projection;
+
+use std::path::{Path, PathBuf};
+use std::sync::OnceLock;
+
+use crate::catalogue::Table;
+use crate::physics::cosmology::{Cosmology, CosmologyParams};
+
+pub use html::write_report;
+
+/// Which sky coordinates the map uses.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum SkyChoice {
+    /// Galactic (l, b), from the `glon`, `glat` columns.
+    #[default]
+    Galactic,
+    /// Supergalactic (SGL, SGB), from the `sgl`, `sgb` columns.
+    Supergalactic,
+}
+
+impl SkyChoice {
+    /// Lower-case name, as used in file names.
+    pub fn name(self) -> &'static str {
+        match self {
+            SkyChoice::Galactic => "galactic",
+            SkyChoice::Supergalactic => "supergalactic",
+        }
+    }
+}
+
+/// Which image files to write for each figure.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default)]
+pub enum ImageFormat {
+    Png,
+    Svg,
+    /// PNG and SVG.
+    #[default]
+    Both,
+}
+
+impl ImageFormat {
+    fn extensions(self) -> &'static [&'static str] {
+        match self {
+            ImageFormat::Png => &["png"],
+            ImageFormat::Svg => &["svg"],
+            ImageFormat::Both => &["png", "svg"],
+        }
+    }
+}
+
+/// What to draw and how.
+#[derive(Debug, Clone)]
+pub struct PlotOptions {
+    /// Coordinates of the sky map.
+    pub sky: SkyChoice,
+    /// PNG, SVG or both.
+    pub format: ImageFormat,
+    /// The bulk-flow result (`OUTPUT.bulkflow.json`), for the direction on the sky map; without
+    /// it the map says that no bulk flow is marked.
+    pub bulkflow: Option<serde_json::Value>,
+    /// Cosmology of the model curve in the Hubble diagram (default flat ΛCDM, H0 = 70, Ω_m = 0.3).
+    pub cosmology: CosmologyParams,
+    /// Figure size in pixels (SVG: the same size in user units).
+    pub width: u32,
+    pub height: u32,
+    /// A short name of the sample for the figure titles (e.g. the input file name).
+    pub label: Option<String>,
+}
+
+impl Default for PlotOptions {
+    fn default() -> Self {
+        PlotOptions {
+            sky: SkyChoice::Galactic,
+            format: ImageFormat::Both,
+            bulkflow: None,
+            cosmology: CosmologyParams::flat_lcdm(70.0, 0.3),
+            width: 1600,
+            height: 1000,
+            label: None,
+        }
+    }
+}
+
+/// The figures, in the order they are drawn; `stem` is the file name without extension.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub(crate) enum Figure {
+    Hubble,
+    VelocityDistance,
+    Sky(SkyChoice),
+    Pulls,
+}
+
+impl Figure {
+    pub(crate) fn stem(self) -> &'static str {
+        match self {
+            Figure::Hubble => "hubble_diagram",
+            Figure::VelocityDistance => "velocity_distance",
+            Figure::Sky(SkyChoice::Galactic) => "sky_galactic",
+            Figure::Sky(SkyChoice::Supergalactic) => "sky_supergalactic",
+            Figure::Pulls => "velocity_pulls",
+        }
+    }
+
+    pub(crate) fn from_stem(stem: &str) -> Option<Figure> {
+        [
+            Figure::Hubble,
+            Figure::VelocityDistance,
+            Figure::Sky(SkyChoice::Galactic),
+            Figure::Sky(SkyChoice::Supergalactic),
+            Figure::Pulls,
+        ]
+        .into_iter()
+        .find(|f| f.stem() == stem)
+    }
+
+    /// A one-line description for the report.
+    pub(crate) fn describe(self) -> &'static str {
+        match self {
+            Figure::Hubble => "Hubble diagram: distance indicator against CMB-frame redshift, the model curve, and the residuals from it.",
+            Figure::VelocityDistance => "Peculiar velocity against comoving distance, with errors and running statistics.",
+            Figure::Sky(SkyChoice::Galactic) => "Peculiar velocities on the sky, Galactic coordinates (Mollweide equal-area projection).",
+            Figure::Sky(SkyChoice::Supergalactic) => "Peculiar velocities on the sky, supergalactic coordinates (Mollweide equal-area projection).",
+            Figure::Pulls => "Velocities in units of their errors, against a unit normal.",
+        }
+    }
+}
+
+/// Register the bundled font with plotters, once per process.
+pub(crate) fn register_fonts() -> Result<(), String> {
+    static DONE: OnceLock<Result<(), String>> = OnceLock::new();
+    DONE.get_or_init(|| {
+        use plotters::style::FontStyle;
+        let faces: [(FontStyle, &'static [u8]); 3] = [
+            (FontStyle::Normal, dejavu::sans::regular()),
+            (FontStyle::Bold, dejavu::sans::bold()),
+            (FontStyle::Italic, dejavu::sans::oblique()),
+        ];
+        for (style, bytes) in faces {
+            plotters::style::register_font("sans-serif", style, bytes)
+                .map_err(|_| "the bundled DejaVu Sans font could not be loaded".to_string())?;
+        }
+        Ok(())
+    })
+    .clone()
+}
+
+/// Draw every figure of `table` into `out_dir` (created if needed; existing figure files are
+/// replaced) and return the paths written, PNG before SVG for each figure.
+pub fn render_all(
+    table: &Table,
+    options: &PlotOptions,
+    out_dir: &Path,
+) -> Result<Vec<PathBuf>, String> {
+    if options.width < 400 || options.height < 300 {
+        return Err(format!(
+            "figure size {}×{} px is too small (at least 400×300)",
+            options.width, options.height
+        ));
+    }
+    register_fonts()?;
+    std::fs::create_dir_all(out_dir)
+        .map_err(|e| format!("{}: cannot create the folder: {e}", out_dir.display()))?;
+    let sample = data::Sample::from_table(table, options.sky)?;
+    let cosmology =
+        Cosmology::new(options.cosmology).map_err(|e| format!("model cosmology: {e}"))?;
+    let context = figures::Context {
+        sample: &sample,
+        cosmology: &cosmology,
+        options,
+    };
+    let mut written = Vec::new();
+    for figure in [
+        Figure::Hubble,
+        Figure::VelocityDistance,
+        Figure::Sky(options.sky),
+        Figure::Pulls,
+    ] {
+        for ext in options.format.extensions() {
+            let path = out_dir.join(format!("{}.{ext}", figure.stem()));
+            figures::write_figure(figure, &context, &path)
+                .map_err(|e| format!("{}: {e}", path.display()))?;
+            written.push(path);
+        }
+    }
+    Ok(written)
+}
+
+/// The folder a file is in ("." for a bare name).
+pub(crate) fn folder_of(path: &Path) -> &Path {
+    path.parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."))
+}
+
+/// Temporary files are private; finished figures and reports are readable like other outputs.
+pub(crate) fn set_readable(path: &Path) {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        let _ = std::fs::set_permissions(path, std::fs::Permissions::from_mode(0o644));
+    }
+    #[cfg(not(unix))]
+    let _ = path;
+}
+
+/// Write `bytes` to `path` through a temporary file in the same folder and a rename.
+pub(crate) fn atomic_write(path: &Path, bytes: &[u8]) -> Result<(), String> {
+    use std::io::Write;
+    let dir = folder_of(path);
+    let mut tmp = tempfile::Builder::new()
+        .prefix(".flowsift-partial-")
+        .tempfile_in(dir)
+        .map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
+    tmp.write_all(bytes)
+        .and_then(|_| tmp.as_file().sync_all())
+        .map_err(|e| format!("cannot write: {e}"))?;
+    set_readable(tmp.path());
+    tmp.persist(path)
+        .map_err(|e| format!("cannot move the finished file into place: {}", e.error))?;
+    Ok(())
+}
