@@ -530,6 +530,10 @@ fn demo_runs() {
         "lantern_velocities.csv.provenance.json",
         "lantern_velocities.fits.bulkflow.json",
         "lantern_velocities.flow.fits",
+        "lantern_corrected.fits",
+        "report.html",
+        "figures/hubble_diagram.png",
+        "figures/sky_galactic.svg",
     ] {
         assert!(dir.path().join(f).exists(), "{f} missing");
     }

@@ -196,6 +196,37 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
     }
     println!("  (the mean offset of v_pec is the known bias of velocities from log-normal distance errors; η, fitted for the flow, is nearly free of it)");
     corrected_hubble_diagram(&data, &a.out_dir)?;
+
+    // Figures and the run report, from the FITS output (the CSV one if FITS was skipped).
+    let fits_out = a.out_dir.join("lantern_velocities.fits");
+    let figure_source = if fits_out.exists() {
+        fits_out
+    } else {
+        summary.output.clone()
+    };
+    let table = read_table(&figure_source, &ReadOptions::default())?;
+    let bulkflow = summary
+        .bulk_flow
+        .as_ref()
+        .and_then(|(b, _)| serde_json::to_value(b).ok());
+    let options = flowsift::report::PlotOptions {
+        bulkflow: bulkflow.clone(),
+        label: Some(spec.name.clone()),
+        ..Default::default()
+    };
+    let figures_dir = a.out_dir.join("figures");
+    let figures =
+        flowsift::report::render_all(&table, &options, &figures_dir).map_err(|e| anyhow!(e))?;
+    let report = a.out_dir.join("report.html");
+    flowsift::report::write_report(&table, &figure_source, &figures, bulkflow.as_ref(), &report)
+        .map_err(|e| anyhow!(e))?;
+    println!();
+    println!(
+        "figures: {} files in {}",
+        figures.len(),
+        figures_dir.display()
+    );
+    println!("report: {}", report.display());
     println!("outputs in {}", a.out_dir.display());
     Ok(())
 }
