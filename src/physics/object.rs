@@ -39,7 +39,7 @@ pub struct ObjectInput {
 }
 
 /// One object's derived quantities. Distances are in the context's length unit.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize)]
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize)]
 pub struct ObjectResult {
     pub glon: f64,
     pub glat: f64,

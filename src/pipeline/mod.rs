@@ -13,7 +13,7 @@ use rayon::prelude::*;
 
 use crate::catalogue::{ColumnMeta, Table};
 use crate::physics::estimators::Distance;
-use crate::physics::object::{evaluate, ObjectContext, ObjectInput};
+use crate::physics::object::{evaluate, ObjectContext, ObjectInput, ObjectResult};
 pub use inputs::{extract, InputColumns};
 pub use status::RowStatus;
 
@@ -39,6 +39,28 @@ pub const OUTPUT_COLUMNS: &[(&str, &str, &str)] = &[
     ("eta_err", "", "stat.error;pos.distance"),
     ("d_c", "LENGTH", "pos.distance"),
 ];
+
+/// The derived values of one object in the order of [`OUTPUT_COLUMNS`].
+pub fn output_values(r: &ObjectResult) -> [f64; 16] {
+    [
+        r.glon,
+        r.glat,
+        r.sgl,
+        r.sgb,
+        r.sgx,
+        r.sgy,
+        r.sgz,
+        r.z_cmb,
+        r.z_cos,
+        r.z_cos_err,
+        r.z_pec,
+        r.v_pec,
+        r.v_pec_err,
+        r.eta,
+        r.eta_err,
+        r.d_c,
+    ]
+}
 
 /// Indices of the error columns in [`OUTPUT_COLUMNS`] (nulled when an input error is missing).
 mod col {
@@ -135,24 +157,7 @@ pub fn derive(
                 };
                 match evaluate(ctx, &obj) {
                     Ok(r) => {
-                        let values = [
-                            r.glon,
-                            r.glat,
-                            r.sgl,
-                            r.sgb,
-                            r.sgx,
-                            r.sgy,
-                            r.sgz,
-                            r.z_cmb,
-                            r.z_cos,
-                            r.z_cos_err,
-                            r.z_pec,
-                            r.v_pec,
-                            r.v_pec_err,
-                            r.eta,
-                            r.eta_err,
-                            r.d_c,
-                        ];
+                        let values = output_values(&r);
                         for (o, v) in out.iter_mut().zip(values) {
                             o[j] = v;
                         }
@@ -266,5 +271,9 @@ mod tests {
         assert_eq!(OUTPUT_COLUMNS[col::Z_COS_ERR].0, "z_cos_err");
         assert_eq!(OUTPUT_COLUMNS[col::V_PEC_ERR].0, "v_pec_err");
         assert_eq!(OUTPUT_COLUMNS[col::ETA_ERR].0, "eta_err");
+        assert_eq!(
+            OUTPUT_COLUMNS.len(),
+            output_values(&ObjectResult::default()).len()
+        );
     }
 }

@@ -16,7 +16,7 @@ use crate::physics::cosmology::Cosmology;
 use crate::physics::estimators::{Distance, DistanceKind};
 use crate::physics::malmquist::{homogeneous_malmquist_factor, malmquist_factor, RadialProfile};
 use crate::physics::object::{evaluate_with, ObjectContext, ObjectInput};
-use crate::pipeline::{Derived, InputColumns, RowStatus, OUTPUT_COLUMNS};
+use crate::pipeline::{output_values, Derived, InputColumns, RowStatus, OUTPUT_COLUMNS};
 use crate::plan::{ColumnPlan, MalmquistChoice, MalmquistMethod};
 
 /// Columns a flowsift run adds besides [`OUTPUT_COLUMNS`] and `status`.
@@ -267,24 +267,7 @@ pub fn group_table(
         };
         match evaluate_with(ctx, &obj, Some(g.z_cmb[gi])) {
             Ok(r) => {
-                let values = [
-                    r.glon,
-                    r.glat,
-                    r.sgl,
-                    r.sgb,
-                    r.sgx,
-                    r.sgy,
-                    r.sgz,
-                    r.z_cmb,
-                    r.z_cos,
-                    r.z_cos_err,
-                    r.z_pec,
-                    r.v_pec,
-                    r.v_pec_err,
-                    r.eta,
-                    r.eta_err,
-                    r.d_c,
-                ];
+                let values = output_values(&r);
                 for (c, v) in cols.iter_mut().zip(values) {
                     c[gi] = v;
                 }
