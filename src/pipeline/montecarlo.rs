@@ -15,7 +15,7 @@ use rayon::prelude::*;
 use crate::physics::chebyshev::{Chebyshev, ChebyshevNodes};
 use crate::physics::estimators::{DistanceKind, DlConvention};
 use crate::physics::object::ObjectContext;
-use crate::physics::redshift::{doppler_velocity_of, Cmb, Heliocentric, Redshift};
+use crate::physics::redshift::{doppler_velocity_of, Heliocentric, Redshift};
 use crate::physics::restframe::{legacy_additive, BoostMethod};
 use crate::physics::sky::{Direction, Galactic, Icrs};
 
@@ -186,25 +186,31 @@ fn one_object(
             zh.ln_1p()
         }
     };
+    // The boost is a fixed factor on 1 + z for this direction (exact boost).
+    let boost_factor = ctx.cmb.factor(gal);
+    let ln_q = (q0 / factor).ln();
+    let sq_rel = sq / q0;
     for _ in 0..draws {
         let gz: f64 = StandardNormal.sample(rng);
         let gq: f64 = StandardNormal.sample(rng);
         let zh = z0 + sz * gz;
-        let Ok(z_helio) = Redshift::<Heliocentric>::new(zh) else {
+        if zh.is_nan() || zh <= -1.0 {
             failed += 1;
             continue;
-        };
-        let z_cmb: Redshift<Cmb> = match ctx.method {
-            BoostMethod::Exact => ctx.cmb.from_heliocentric(z_helio, gal),
-            BoostMethod::LegacyAdditive => match legacy_additive(&ctx.cmb, z_helio, gal) {
-                Ok(z) => z,
-                Err(_) => {
-                    failed += 1;
-                    continue;
+        }
+        let zc1 = match ctx.method {
+            BoostMethod::Exact => (1.0 + zh) * boost_factor,
+            BoostMethod::LegacyAdditive => {
+                match legacy_additive(&ctx.cmb, Redshift::<Heliocentric>::new_unchecked(zh), gal) {
+                    Ok(z) => z.one_plus(),
+                    Err(_) => {
+                        failed += 1;
+                        continue;
+                    }
                 }
-            },
+            }
         };
-        if z_cmb.value() <= 0.0 {
+        if zc1 <= 1.0 {
             failed += 1;
             continue;
         }
@@ -213,15 +219,15 @@ fn one_object(
                 let ln_dl = match kind {
                     DistanceKind::Mu => (q0 + sq * gq - 25.0) * ln10_5,
                     // Log-normal: σ_lnD = σ_D / D.
-                    _ => (q0 / factor).ln() + sq / q0 * gq,
+                    _ => ln_q + sq_rel * gq,
                 };
                 match convention {
                     DlConvention::Observed => ln_dl - ln1p_draw(zh),
                     DlConvention::Cosmological => ln_dl,
-                    DlConvention::Full => ln_dl - ln1p_draw(zh) - z_cmb.value().ln_1p(),
+                    DlConvention::Full => ln_dl - ln1p_draw(zh) - zc1.ln(),
                 }
             }
-            DistanceKind::Dc => (q0 / factor).ln() + sq / q0 * gq,
+            DistanceKind::Dc => ln_q + sq_rel * gq,
             DistanceKind::Eta => {
                 // x = ln D_C(z_cmb) − η ln 10; D_C(z_cmb) is filled in below.
                 eta_values.push(q0 + sq * gq);
@@ -229,7 +235,7 @@ fn one_object(
             }
         };
         d.x.push(x);
-        d.zc1.push(z_cmb.one_plus());
+        d.zc1.push(zc1);
     }
     if kind == DistanceKind::Eta {
         for (k, eta) in eta_values.iter().enumerate() {
