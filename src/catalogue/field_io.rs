@@ -130,6 +130,44 @@ pub fn read_field(
     grid_from_table(&table, axes_hint, unit_hint).map_err(err)
 }
 
+/// A density-contrast grid δ from a table with columns `x`, `y`, `z`, `delta` on a regular
+/// grid (the same rules as the table form of a velocity field). Returned as a grid whose
+/// first component holds δ (the other two are zero), so the geometry travels with it.
+pub fn read_density_table(
+    path: &Path,
+    axes_hint: Option<FieldAxes>,
+    unit_hint: Option<LengthUnit>,
+) -> Result<VelocityGrid, CatalogueError> {
+    let err = |m: String| CatalogueError::read(path, m);
+    let table = read_table(path, &ReadOptions::default())?;
+    let (name, delta) = table_column(&table, "delta").map_err(err)?;
+    let n = delta.len();
+    let mut frame = table.frame.clone();
+    frame = frame.drop(&name).map_err(|e| err(e.to_string()))?;
+    for c in ["vx", "vy", "vz"] {
+        if frame.column(c).is_ok() {
+            frame = frame.drop(c).map_err(|e| err(e.to_string()))?;
+        }
+    }
+    let zeros = vec![0.0; n];
+    frame = frame
+        .hstack(&[
+            polars::prelude::Column::new("vx".into(), delta),
+            polars::prelude::Column::new("vy".into(), zeros.clone()),
+            polars::prelude::Column::new("vz".into(), zeros),
+        ])
+        .map_err(|e| err(e.to_string()))?;
+    grid_from_table(
+        &Table {
+            frame,
+            meta: table.meta.clone(),
+        },
+        axes_hint,
+        unit_hint,
+    )
+    .map_err(err)
+}
+
 /// Write `grid` as a FITS field file (the [FITS form](self)). Atomic: the file is built under
 /// a temporary name in the destination's folder and renamed over `path`, replacing any file
 /// there (the caller decides whether that is allowed). A name ending in `.gz` gives a

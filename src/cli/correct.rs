@@ -64,6 +64,13 @@ pub struct ModelFlags {
     /// Velocity grid: our FITS field file (VX, VY, VZ images) or a table x, y, z, vx, vy, vz.
     #[arg(long, value_name = "FIELD")]
     pub field: Option<PathBuf>,
+    /// Density-contrast grid (a table x, y, z, delta on a regular grid), turned into
+    /// linear-theory velocities by FFT (the box is taken as periodic).
+    #[arg(long, value_name = "FILE", conflicts_with = "field")]
+    pub density: Option<PathBuf>,
+    /// Growth rate f for --density (default Ω_m^0.55 of the cosmology).
+    #[arg(long = "growth-rate", value_name = "F", requires = "density")]
+    pub growth_rate: Option<f64>,
     /// Axes of the model's Cartesian coordinates (when the file does not say): supergalactic or galactic.
     #[arg(long = "field-axes", value_enum, value_name = "AXES")]
     pub field_axes: Option<AxesArg>,
@@ -114,14 +121,32 @@ impl ModelFlags {
             UnitArg::Mpc => LengthUnit::Mpc,
             UnitArg::MpcOverH => LengthUnit::MpcOverH,
         });
-        let grid = match &self.field {
-            Some(p) => Some(read_field(p, axes_hint, unit_hint)?),
-            None => None,
-        };
         let mut description = vec![];
-        if let Some(p) = &self.field {
-            description.push(format!("grid {}", p.display()));
-        }
+        let grid = match (&self.field, &self.density) {
+            (Some(p), _) => {
+                description.push(format!("grid {}", p.display()));
+                Some(read_field(p, axes_hint, unit_hint)?)
+            }
+            (None, Some(p)) => {
+                let d = flowsift::catalogue::field_io::read_density_table(p, axes_hint, unit_hint)?;
+                let f = self
+                    .growth_rate
+                    .unwrap_or_else(|| growth_rate(params.omega_m, params.omega_de, 0.0));
+                let v = flowsift::physics::field::velocity_from_density(
+                    &d.v[0],
+                    d.shape,
+                    d.spacing,
+                    f,
+                    hubble_per_length(params, d.length_unit),
+                );
+                description.push(format!(
+                    "linear-theory velocities from the density grid {} (f = {f:.4}, periodic FFT)",
+                    p.display()
+                ));
+                Some(flowsift::physics::field::VelocityGrid { v, ..d })
+            }
+            (None, None) => None,
+        };
         let centres: Vec<InfallCentre> = self
             .infall
             .iter()
