@@ -5,7 +5,9 @@
 //! no solution.
 //!
 //! Reproducibility: object i draws from its own ChaCha8 stream (seed, stream i), so the
-//! same seed gives identical output whatever the number of threads.
+//! same seed gives identical output whatever the number of threads. Each draw takes a
+//! normal deviate for the redshift (only when σ_z > 0) and one for the distance, in that
+//! order.
 
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
@@ -191,7 +193,12 @@ fn one_object(
     let ln_q = (q0 / factor).ln();
     let sq_rel = sq / q0;
     for _ in 0..draws {
-        let gz: f64 = StandardNormal.sample(rng);
+        // No redshift error, no redshift draw (the stream then holds distance draws only).
+        let gz: f64 = if sz > 0.0 {
+            StandardNormal.sample(rng)
+        } else {
+            0.0
+        };
         let gq: f64 = StandardNormal.sample(rng);
         let zh = z0 + sz * gz;
         if zh.is_nan() || zh <= -1.0 {
@@ -348,7 +355,11 @@ mod tests {
                     );
                     let mut v = vec![];
                     for _ in 0..draws {
-                        let gz: f64 = StandardNormal.sample(&mut rng);
+                        let gz: f64 = if input.z_err[i] > 0.0 {
+                            StandardNormal.sample(&mut rng)
+                        } else {
+                            0.0
+                        };
                         let gq: f64 = StandardNormal.sample(&mut rng);
                         let zh =
                             Redshift::<Heliocentric>::new(input.z_helio[i] + input.z_err[i] * gz)
