@@ -5,11 +5,11 @@
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
-use crate::physics::bulkflow::{amplitude_direction, BulkFlowFit, FlowData, SigmaStar};
+use crate::physics::bulkflow::{amplitude_direction, BulkFlowFit, SigmaStar};
 use crate::physics::cosmology::Cosmology;
 use crate::physics::sky::{Rotation, SkyFrame, SkyRotations};
 
-use super::outliers::{fit_vectors, FitSpace};
+use super::outliers::{fit_subset, fit_vectors, fittable, FitSpace};
 use super::FlowSample;
 
 /// Bulk-flow settings as the user gives them (run file `[bulk_flow]`, or flags).
@@ -132,28 +132,9 @@ pub fn bulk_flow(
     lcdm: Option<&LcdmHook<'_>>,
 ) -> Result<BulkFlowReport, String> {
     let (y, e, k) = fit_vectors(sample, cosmology, space);
-    let idx: Vec<usize> = (0..sample.len())
-        .filter(|&i| {
-            sample.usable[i]
-                && y[i].is_finite()
-                && e[i].is_finite()
-                && e[i] > 0.0
-                && k[i].is_finite()
-        })
-        .collect();
-    let dirs: Vec<[f64; 3]> = idx.iter().map(|&i| sample.directions[i]).collect();
-    let yy: Vec<f64> = idx.iter().map(|&i| y[i]).collect();
-    let ee: Vec<f64> = idx.iter().map(|&i| e[i]).collect();
+    let keep = fittable(sample, &y, &e, &k);
+    let (fit, idx) = fit_subset(sample, &y, &e, &k, &keep, sigma_star)?;
     let kk: Vec<f64> = idx.iter().map(|&i| k[i]).collect();
-    let fit = crate::physics::bulkflow::fit_bulk_flow(
-        &FlowData {
-            directions: &dirs,
-            values: &yy,
-            errors: &ee,
-            kappa: &kk,
-        },
-        sigma_star,
-    )?;
     let (amplitude, l, b, amplitude_err) = amplitude_direction(fit.v, fit.cov);
     let rot = SkyRotations::default();
     let supergalactic = rotate(&rot.galactic_to_supergalactic, fit.v, fit.cov);

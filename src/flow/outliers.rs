@@ -203,7 +203,21 @@ pub fn fit_vectors(
     }
 }
 
-fn fit_subset(
+/// Rows that can enter a fit: usable, with finite data, a positive error and a finite κ.
+pub(crate) fn fittable(sample: &FlowSample, y: &[f64], e: &[f64], k: &[f64]) -> Vec<bool> {
+    (0..sample.len())
+        .map(|i| {
+            sample.usable[i]
+                && y[i].is_finite()
+                && e[i].is_finite()
+                && e[i] > 0.0
+                && k[i].is_finite()
+        })
+        .collect()
+}
+
+/// Fit the flow to the rows marked in `keep`; returns the fit and the rows used.
+pub(crate) fn fit_subset(
     sample: &FlowSample,
     y: &[f64],
     e: &[f64],
@@ -238,15 +252,7 @@ pub fn flag_outliers(
 ) -> Result<OutlierResult, String> {
     let n = sample.len();
     let (y, e, k) = fit_vectors(sample, cosmology, s.space);
-    let usable: Vec<bool> = (0..n)
-        .map(|i| {
-            sample.usable[i]
-                && y[i].is_finite()
-                && e[i].is_finite()
-                && e[i] > 0.0
-                && k[i].is_finite()
-        })
-        .collect();
+    let usable = fittable(sample, &y, &e, &k);
     let mut reasons = vec![0u8; n];
     // (c) hard limits.
     for i in 0..n {
