@@ -4,24 +4,49 @@
 //! Reported: median and 16th/84th percentiles of v_pec, and the number of draws that had
 //! no solution.
 //!
-//! Reproducibility: object i draws from its own ChaCha8 stream (seed, stream i), so the
-//! same seed gives identical output whatever the number of threads. Each draw takes a
+//! Reproducibility: object i draws from its own generator, [`object_rng`]`(seed, i)`, so
+//! the same seed gives identical output whatever the number of threads. Each draw takes a
 //! normal deviate for the redshift (only when σ_z > 0) and one for the distance, in that
 //! order.
 
 use rand::SeedableRng;
-use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
+use rand_xoshiro::Xoshiro256PlusPlus;
 use rayon::prelude::*;
 
 use crate::physics::chebyshev::{Chebyshev, ChebyshevNodes};
+use crate::physics::constants::C_KM_S;
 use crate::physics::estimators::{DistanceKind, DlConvention};
 use crate::physics::object::ObjectContext;
-use crate::physics::redshift::{doppler_velocity_of, Heliocentric, Redshift};
+use crate::physics::redshift::{Heliocentric, Redshift};
 use crate::physics::restframe::{legacy_additive, BoostMethod};
 use crate::physics::sky::{Direction, Galactic, Icrs};
 
 use super::{chunked, InputColumns, RowStatus};
+
+/// The random generator of object `i` under `seed`: xoshiro256++ (Blackman & Vigna 2021,
+/// "Scrambled linear pseudorandom number generators", ACM TOMS 47, 36), its 256-bit state
+/// filled by SplitMix64 (Steele, Lea & Flood 2014, OOPSLA; the seeding those authors
+/// recommend) started from the seed's first SplitMix64 output combined with `i`. Distinct
+/// objects get distinct SplitMix64 starting points (odd-multiplier products are distinct),
+/// so distinct states; chosen over a cryptographic stream generator for speed, the normal
+/// deviates being the largest cost of a draw.
+pub fn object_rng(seed: u64, i: u64) -> Xoshiro256PlusPlus {
+    fn splitmix64(x: &mut u64) -> u64 {
+        *x = x.wrapping_add(0x9E37_79B9_7F4A_7C15);
+        let mut z = *x;
+        z = (z ^ (z >> 30)).wrapping_mul(0xBF58_476D_1CE4_E5B9);
+        z = (z ^ (z >> 27)).wrapping_mul(0x94D0_49BB_1331_11EB);
+        z ^ (z >> 31)
+    }
+    let mut x = seed;
+    let mut x = splitmix64(&mut x) ^ i.wrapping_mul(0xD605_BBB5_8C8A_BBFD);
+    let mut bytes = [0u8; 32];
+    for word in bytes.chunks_exact_mut(8) {
+        word.copy_from_slice(&splitmix64(&mut x).to_le_bytes());
+    }
+    Xoshiro256PlusPlus::from_seed(bytes)
+}
 
 /// Percentile summaries per object (NaN where not computed).
 #[derive(Debug, Clone)]
@@ -33,42 +58,89 @@ pub struct MonteCarlo {
 }
 
 /// Linear-interpolated quantiles (the "type 7" definition of Hyndman & Fan 1996, Am. Stat.
-/// 50, 361) at p in ascending order, by partial selection.
-pub fn quantiles(values: &mut [f64], ps: &[f64; 3]) -> [f64; 3] {
-    let n = values.len();
+/// 50, 361) at p in ascending order. NaN sorts above +∞ (IEEE 754 total order).
+pub fn quantiles(values: &[f64], ps: &[f64; 3]) -> [f64; 3] {
+    let mut keys: Vec<i64> = values.iter().map(|x| order_key(*x)).collect();
+    quantiles_of_keys(&mut keys, ps)
+}
+
+/// A key whose integer order is the IEEE 754 total order of the f64 (as `f64::total_cmp`):
+/// flip the magnitude bits of negative numbers. Selecting on integers is cheaper than
+/// comparing floats with `total_cmp` at every step.
+#[inline]
+fn order_key(x: f64) -> i64 {
+    let bits = x.to_bits() as i64;
+    bits ^ ((((bits >> 63) as u64) >> 1) as i64)
+}
+
+/// The inverse of [`order_key`].
+#[inline]
+fn from_order_key(k: i64) -> f64 {
+    f64::from_bits((k ^ ((((k >> 63) as u64) >> 1) as i64)) as u64)
+}
+
+/// [`quantiles`] of values given as [`order_key`]s, by partial selection: the middle one
+/// over the whole slice, then the outer ones inside the parts it leaves. Reorders `keys`.
+fn quantiles_of_keys(keys: &mut [i64], ps: &[f64; 3]) -> [f64; 3] {
+    let n = keys.len();
     if n == 0 {
         return [f64::NAN; 3];
     }
-    let mut out = [0.0; 3];
-    let mut lo_bound = 0;
-    for (k, p) in ps.iter().enumerate() {
-        let h = (n - 1) as f64 * p;
-        let lo = h.floor() as usize;
-        let frac = h - lo as f64;
-        let (_, x_lo, rest) =
-            values[lo_bound..].select_nth_unstable_by(lo - lo_bound, |a, b| a.total_cmp(b));
-        let x_lo = *x_lo;
-        let x_hi = if frac > 0.0 && !rest.is_empty() {
-            rest.iter().copied().fold(f64::INFINITY, f64::min)
+    let at = ps.map(|p| {
+        let h = (n - 1) as f64 * p.clamp(0.0, 1.0);
+        let lo = (h.floor() as usize).min(n - 1);
+        (lo, h - lo as f64)
+    });
+    let [(l0, _), (l1, _), (l2, _)] = at;
+    debug_assert!(l0 <= l1 && l1 <= l2, "probabilities in ascending order");
+    // After these three selections: keys[..l0] ≤ keys[l0] ≤ keys[l0+1..l1] ≤ keys[l1] ≤
+    // keys[l1+1..l2] ≤ keys[l2] ≤ keys[l2+1..].
+    keys.select_nth_unstable(l1);
+    if l0 < l1 {
+        keys[..l1].select_nth_unstable(l0);
+    }
+    if l2 > l1 {
+        keys[l1 + 1..].select_nth_unstable(l2 - l1 - 1);
+    }
+    // The order statistic after index l: the smallest key up to the next selected index
+    // (which bounds everything between).
+    let next_after = |keys: &[i64], l: usize| -> i64 {
+        let bound = [l1, l2].into_iter().find(|b| *b > l).unwrap_or(n - 1);
+        keys[l + 1..=bound]
+            .iter()
+            .copied()
+            .min()
+            .expect("non-empty")
+    };
+    at.map(|(lo, frac)| {
+        let x_lo = from_order_key(keys[lo]);
+        if frac > 0.0 && lo + 1 < n {
+            x_lo + frac * (from_order_key(next_after(keys, lo)) - x_lo)
         } else {
             x_lo
-        };
-        out[k] = x_lo + frac * (x_hi - x_lo);
-        lo_bound = lo;
-    }
-    out
+        }
+    })
 }
 
 /// Node counts tried, in order, for the per-object Chebyshev interpolant of z_cos against
 /// the log-distance (few nodes are fast to evaluate; more cover wide spans).
 const NODE_COUNTS: [usize; 2] = [12, 24];
 
-/// The draws of one object, before the distance inversion.
+/// Per-thread work buffers for the draws of one object (structure of arrays, so that each
+/// step runs over all draws in a tight loop).
+#[derive(Default)]
 struct Draws {
-    /// ln of the inversion target (D_M, D_L, D_A or D_C in Mpc) per draw.
+    /// Standard normal deviates of the redshift (empty when σ_z = 0) and of the distance.
+    gz: Vec<f64>,
+    gq: Vec<f64>,
+    /// ln of the inversion target (D_M, D_L, D_A or D_C in Mpc) per draw; NaN for a draw
+    /// that already failed.
     x: Vec<f64>,
     /// 1 + z_cmb per draw.
     zc1: Vec<f64>,
+    /// z_cos per draw, then v_pec per draw.
+    z_cos: Vec<f64>,
+    v_all: Vec<f64>,
 }
 
 /// Which inversion turns the target into z_cos.
@@ -112,10 +184,7 @@ pub fn run(
     chunked(&mut cols, &mut st)
         .into_par_iter()
         .for_each(|(start, mut out, st)| {
-            let mut d = Draws {
-                x: Vec::with_capacity(draws),
-                zc1: Vec::with_capacity(draws),
-            };
+            let mut d = Draws::default();
             let mut v = Vec::with_capacity(draws);
             for j in 0..st.len() {
                 if st[j] != RowStatus::Ok as u8 {
@@ -128,13 +197,12 @@ pub fn run(
                     continue;
                 };
                 let gal = ctx.rotations.icrs_to_galactic.apply(&icrs);
-                let mut rng = ChaCha8Rng::seed_from_u64(seed);
-                rng.set_stream(i as u64);
+                let mut rng = object_rng(seed, i as u64);
                 let failed = one_object(
                     ctx, input, i, &gal, factor, &bases, draws, &mut rng, &mut d, &mut v,
                 );
                 let [p16, p50, p84] =
-                    quantiles(&mut v, &[0.158_655_253_931_457, 0.5, 0.841_344_746_068_543]);
+                    quantiles_of_keys(&mut v, &[0.158_655_253_931_457, 0.5, 0.841_344_746_068_543]);
                 out[0][j] = p50;
                 out[1][j] = p16;
                 out[2][j] = p84;
@@ -151,8 +219,8 @@ pub fn run(
     }
 }
 
-/// All draws of object `i` into `v` (velocities of the successful draws); returns the
-/// number of failed draws.
+/// All draws of object `i` into `v` (velocities of the successful draws, as
+/// [`order_key`]s); returns the number of failed draws.
 #[allow(clippy::too_many_arguments)]
 fn one_object(
     ctx: &ObjectContext<'_>,
@@ -162,107 +230,140 @@ fn one_object(
     factor: f64,
     bases: &[ChebyshevNodes],
     draws: usize,
-    rng: &mut ChaCha8Rng,
+    rng: &mut Xoshiro256PlusPlus,
     d: &mut Draws,
-    v: &mut Vec<f64>,
+    v: &mut Vec<i64>,
 ) -> usize {
     let kind = input.distance_kind;
     let (z0, sz) = (input.z_helio[i], input.z_err[i]);
     let (q0, sq) = (input.distance[i], input.distance_err[i]);
     let convention = ctx.options.convention;
     let ln10_5 = std::f64::consts::LN_10 / 5.0;
-    d.x.clear();
-    d.zc1.clear();
     v.clear();
-    let mut failed = 0usize;
-    // Draw everything first (two normals per draw, in a fixed order).
-    let mut eta_values = Vec::new();
+
+    // 1. The deviates, in the stream's fixed order: per draw the redshift's (only when
+    //    σ_z > 0), then the distance's.
+    d.gz.clear();
+    d.gq.clear();
+    if sz > 0.0 {
+        for _ in 0..draws {
+            d.gz.push(StandardNormal.sample(rng));
+            d.gq.push(StandardNormal.sample(rng));
+        }
+    } else {
+        d.gq.extend((0..draws).map(|_| -> f64 { StandardNormal.sample(rng) }));
+    }
+
+    // 2. Per draw: 1 + z_helio, 1 + z_cmb and ln(1 + z_helio). A draw with z_helio ≤ −1 or
+    //    z_cmb ≤ 0 fails (x = NaN below).
     // ln(1 + z_helio) per draw as ln(1 + z0) + ln(1 + y), y = σ_z g/(1 + z0); for |y| < 1e-3
     // the series y − y²/2 + y³/3 − y⁴/4 is exact to < 2e-16 absolute (next term y⁵/5).
     let ln1z0 = z0.ln_1p();
-    let ln1p_draw = |zh: f64| {
-        let y = (zh - z0) / (1.0 + z0);
+    let y_per_g = sz / (1.0 + z0);
+    let ln1p_draw = |g: f64| {
+        let y = y_per_g * g;
         if y.abs() < 1e-3 {
             ln1z0 + y * (1.0 - y * (0.5 - y * (1.0 / 3.0 - 0.25 * y)))
         } else {
-            zh.ln_1p()
+            (z0 + sz * g).ln_1p()
         }
     };
-    // The boost is a fixed factor on 1 + z for this direction (exact boost).
+    // The exact boost is a fixed factor on 1 + z for this direction.
     let boost_factor = ctx.cmb.factor(gal);
-    let ln_q = (q0 / factor).ln();
-    let sq_rel = sq / q0;
-    for _ in 0..draws {
-        // No redshift error, no redshift draw (the stream then holds distance draws only).
-        let gz: f64 = if sz > 0.0 {
-            StandardNormal.sample(rng)
-        } else {
-            0.0
-        };
-        let gq: f64 = StandardNormal.sample(rng);
-        let zh = z0 + sz * gz;
-        if zh.is_nan() || zh <= -1.0 {
-            failed += 1;
-            continue;
+    let ln_boost = boost_factor.ln();
+    let legacy = |zh: f64| {
+        legacy_additive(&ctx.cmb, Redshift::<Heliocentric>::new_unchecked(zh), gal)
+            .map(|z| z.one_plus())
+            .unwrap_or(f64::NAN)
+    };
+    d.zc1.clear();
+    d.x.clear();
+    // ln(1 + z_helio) per draw is kept in x for now; NaN marks a failed draw.
+    let valid = |zh: f64, zc1: f64| zh > -1.0 && zc1 > 1.0;
+    if sz > 0.0 {
+        match ctx.method {
+            BoostMethod::Exact => d
+                .zc1
+                .extend(d.gz.iter().map(|g| (1.0 + (z0 + sz * g)) * boost_factor)),
+            BoostMethod::LegacyAdditive => d.zc1.extend(d.gz.iter().map(|g| legacy(z0 + sz * g))),
         }
-        let zc1 = match ctx.method {
-            BoostMethod::Exact => (1.0 + zh) * boost_factor,
-            BoostMethod::LegacyAdditive => {
-                match legacy_additive(&ctx.cmb, Redshift::<Heliocentric>::new_unchecked(zh), gal) {
-                    Ok(z) => z.one_plus(),
-                    Err(_) => {
-                        failed += 1;
-                        continue;
-                    }
-                }
-            }
-        };
-        if zc1 <= 1.0 {
-            failed += 1;
-            continue;
-        }
-        let x = match kind {
-            DistanceKind::Mu | DistanceKind::Dl => {
-                let ln_dl = match kind {
-                    DistanceKind::Mu => (q0 + sq * gq - 25.0) * ln10_5,
-                    // Log-normal: σ_lnD = σ_D / D.
-                    _ => ln_q + sq_rel * gq,
-                };
-                match convention {
-                    DlConvention::Observed => ln_dl - ln1p_draw(zh),
-                    DlConvention::Cosmological => ln_dl,
-                    DlConvention::Full => ln_dl - ln1p_draw(zh) - zc1.ln(),
-                }
-            }
-            DistanceKind::Dc => ln_q + sq_rel * gq,
-            DistanceKind::Eta => {
-                // x = ln D_C(z_cmb) − η ln 10; D_C(z_cmb) is filled in below.
-                eta_values.push(q0 + sq * gq);
+        d.x.extend(d.gz.iter().zip(&d.zc1).map(|(g, zc1)| {
+            if valid(z0 + sz * g, *zc1) {
+                ln1p_draw(*g)
+            } else {
                 f64::NAN
             }
+        }));
+    } else {
+        let zc1 = match ctx.method {
+            BoostMethod::Exact => (1.0 + z0) * boost_factor,
+            BoostMethod::LegacyAdditive => legacy(z0),
         };
-        d.x.push(x);
-        d.zc1.push(zc1);
+        d.zc1.resize(draws, zc1);
+        d.x.resize(draws, if valid(z0, zc1) { ln1z0 } else { f64::NAN });
     }
-    if kind == DistanceKind::Eta {
-        for (k, eta) in eta_values.iter().enumerate() {
-            match ctx.cosmology.comoving_distance(d.zc1[k] - 1.0) {
-                Ok(dc) => d.x[k] = dc.ln() - eta * std::f64::consts::LN_10,
-                Err(_) => d.x[k] = f64::NAN,
+
+    // 3. The log of the inversion target per draw (x holds ln(1 + z_helio) on entry).
+    let ln_q = (q0 / factor).ln();
+    let sq_rel = sq / q0;
+    let exact_boost = ctx.method == BoostMethod::Exact;
+    match kind {
+        DistanceKind::Mu | DistanceKind::Dl => {
+            for ((x, g), zc1) in d.x.iter_mut().zip(&d.gq).zip(&d.zc1) {
+                let ln_dl = if kind == DistanceKind::Mu {
+                    (q0 + sq * g - 25.0) * ln10_5
+                } else {
+                    // Log-normal: σ_lnD = σ_D / D.
+                    ln_q + sq_rel * g
+                };
+                // NaN (a failed draw) propagates in every branch.
+                *x = match convention {
+                    DlConvention::Observed => ln_dl - *x,
+                    DlConvention::Cosmological => ln_dl + 0.0 * *x,
+                    DlConvention::Full if exact_boost => ln_dl - 2.0 * *x - ln_boost,
+                    DlConvention::Full => ln_dl - *x - zc1.ln(),
+                };
+            }
+        }
+        DistanceKind::Dc => {
+            for (x, g) in d.x.iter_mut().zip(&d.gq) {
+                *x = ln_q + sq_rel * g + 0.0 * *x;
+            }
+        }
+        DistanceKind::Eta => {
+            // x = ln D_C(z_cmb) − η ln 10, η drawn; D_C(z_cmb) once when z is not drawn.
+            let ln_dc = |zc1: f64| {
+                ctx.cosmology
+                    .comoving_distance(zc1 - 1.0)
+                    .map(f64::ln)
+                    .unwrap_or(f64::NAN)
+            };
+            let fixed = if sz > 0.0 {
+                None
+            } else {
+                Some(ln_dc(d.zc1[0]))
+            };
+            for ((x, g), zc1) in d.x.iter_mut().zip(&d.gq).zip(&d.zc1) {
+                if x.is_nan() {
+                    continue;
+                }
+                let l = fixed.unwrap_or_else(|| ln_dc(*zc1));
+                *x = l - (q0 + sq * g) * std::f64::consts::LN_10;
             }
         }
     }
+
+    // 4. z_cos per draw: the interpolant with the fewest nodes that can be built over the
+    //    whole span and passes its check at a control point between nodes; else exact.
+    // (Comparisons with NaN are false: failed draws are skipped.)
     let (lo, hi) =
         d.x.iter()
-            .filter(|x| x.is_finite())
             .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| {
-                (a.min(*x), b.max(*x))
+                (if *x < a { *x } else { a }, if *x > b { *x } else { b })
             });
     let mut exact = |x: f64| invert(ctx, kind, x.exp());
-    // The interpolant with the fewest nodes that can be built over the whole span and
-    // passes its check at a control point between nodes.
     let mut fitted = None;
-    if lo <= hi {
+    if lo.is_finite() && hi.is_finite() && lo <= hi {
         let probe = lo + 0.377 * (hi - lo);
         if let Ok(z_probe) = exact(probe) {
             for basis in bases {
@@ -277,18 +378,37 @@ fn one_object(
             }
         }
     }
-    for (x, zc1) in d.x.iter().zip(&d.zc1) {
-        let z_cos = match &fitted {
-            Some(c) if x.is_finite() => Ok(c.eval(*x)),
-            _ if x.is_finite() => exact(*x),
-            _ => Err(crate::physics::PhysicsError::NotFinite {
-                quantity: "distance",
-                value: *x,
-            }),
-        };
-        match z_cos {
-            Ok(zc) if zc > 0.0 => v.push(doppler_velocity_of(zc1 / (1.0 + zc) - 1.0)),
-            _ => failed += 1,
+    d.z_cos.resize(draws, 0.0);
+    match &fitted {
+        // NaN in, NaN out: failed draws stay failed.
+        Some(c) => c.eval_into(&d.x, &mut d.z_cos),
+        None => {
+            for (x, z) in d.x.iter().zip(d.z_cos.iter_mut()) {
+                *z = if x.is_finite() {
+                    exact(*x).unwrap_or(f64::NAN)
+                } else {
+                    f64::NAN
+                };
+            }
+        }
+    }
+
+    // 5. v_pec per draw from 1 + z_pec = (1 + z_cmb)/(1 + z_cos) (relativistic Doppler,
+    //    as `doppler_velocity_of`, with one division: v = c (a − b)/(a + b) for
+    //    a = (1 + z_cmb)², b = (1 + z_cos)²).
+    d.v_all.clear();
+    d.v_all.extend(d.zc1.iter().zip(&d.z_cos).map(|(zc1, zc)| {
+        let a = zc1 * zc1;
+        let b = (1.0 + zc) * (1.0 + zc);
+        C_KM_S * (a - b) / (a + b)
+    }));
+    let mut failed = 0usize;
+    for (vk, zc) in d.v_all.iter().zip(&d.z_cos) {
+        // A failed draw has z_cos NaN (or, from an interpolant, not positive).
+        if *zc > 0.0 {
+            v.push(order_key(*vk));
+        } else {
+            failed += 1;
         }
     }
     failed
@@ -302,6 +422,7 @@ mod tests {
     use crate::physics::estimators::{
         cosmological_redshift, Distance, EstimatorOptions, Observation,
     };
+    use crate::physics::redshift::doppler_velocity_of;
     use crate::physics::restframe::{default_apex, Boost};
     use crate::physics::sky::SkyRotations;
 
@@ -347,8 +468,7 @@ mod tests {
                 let draws = 300;
                 let mc = run(&ctx, &input, &input.status, draws, 42, &|_| {});
                 for i in 0..3 {
-                    let mut rng = ChaCha8Rng::seed_from_u64(42);
-                    rng.set_stream(i as u64);
+                    let mut rng = object_rng(42, i as u64);
                     let gal = ctx.rotations.icrs_to_galactic.apply(
                         &Direction::<Icrs>::from_lon_lat_deg(input.ra_deg[i], input.dec_deg[i])
                             .unwrap(),
@@ -383,7 +503,7 @@ mod tests {
                             v.push(doppler_velocity_of(zc.one_plus() / (1.0 + z) - 1.0));
                         }
                     }
-                    let q = quantiles(&mut v, &[0.158_655_253_931_457, 0.5, 0.841_344_746_068_543]);
+                    let q = quantiles(&v, &[0.158_655_253_931_457, 0.5, 0.841_344_746_068_543]);
                     for (got, want) in [(mc.p16[i], q[0]), (mc.median[i], q[1]), (mc.p84[i], q[2])]
                     {
                         assert!(
@@ -397,11 +517,42 @@ mod tests {
         }
     }
 
+    /// The partial selection against a full sort and the type-7 formula applied to it, for
+    /// every length up to 60 and a long slice, with ties and with coinciding probabilities.
+    #[test]
+    fn quantiles_match_full_sort() {
+        use rand::Rng;
+        let mut rng = object_rng(9, 0);
+        let sets: [[f64; 3]; 4] = [
+            [0.158_655_253_931_457, 0.5, 0.841_344_746_068_543],
+            [0.0, 0.5, 1.0],
+            [0.3, 0.3, 0.3],
+            [0.01, 0.011, 0.99],
+        ];
+        for n in (1..=60).chain([1000, 1001]) {
+            for ps in &sets {
+                let values: Vec<f64> = (0..n)
+                    .map(|_| (rng.random::<f64>() * 20.0).floor() + rng.random::<f64>() * 0.5)
+                    .collect();
+                let mut sorted = values.clone();
+                sorted.sort_by(|a, b| a.total_cmp(b));
+                let want = ps.map(|p| {
+                    let h = (n - 1) as f64 * p;
+                    let lo = h.floor() as usize;
+                    let hi = (lo + 1).min(n - 1);
+                    sorted[lo] + (h - lo as f64) * (sorted[hi] - sorted[lo])
+                });
+                let got = quantiles(&values, ps);
+                assert_eq!(got, want, "n = {n}, p = {ps:?}");
+            }
+        }
+    }
+
     /// Type-7 quantiles of 1..=5: median 3, p = 0.25 → 2 (Hyndman & Fan 1996 definition).
     #[test]
     fn quantiles_type7() {
-        let mut v = vec![5.0, 1.0, 4.0, 2.0, 3.0];
-        let q = quantiles(&mut v, &[0.25, 0.5, 0.9]);
+        let v = vec![5.0, 1.0, 4.0, 2.0, 3.0];
+        let q = quantiles(&v, &[0.25, 0.5, 0.9]);
         assert_eq!(q[0], 2.0);
         assert_eq!(q[1], 3.0);
         assert!((q[2] - 4.6).abs() < 1e-12);
