@@ -76,6 +76,7 @@ use std::ptr;
 
 use fitsio::sys;
 use polars::prelude::*;
+use rayon::prelude::*;
 
 use super::{CatalogueError, ColumnMeta, Provenance, Table};
 
@@ -599,6 +600,150 @@ struct ReadColumn {
     number: c_int,
     name: String,
     kind: ReadKind,
+    /// Byte offset in the row and cell type, for a column decoded straight from the raw
+    /// row bytes (no scaling, no null value, one element); `None`: read through cfitsio.
+    direct: Option<(usize, Direct)>,
+}
+
+/// Cell types decoded from raw row bytes (FITS Standard 4.0 §7.3.3: big-endian two's
+/// complement integers and IEEE 754 floats; 'T'/'F'/0 logicals; blank-padded text).
+#[derive(Clone, Copy, Debug, PartialEq)]
+enum Direct {
+    F64,
+    F32,
+    U8,
+    I16,
+    I32,
+    I64,
+    Bool,
+    Str(usize),
+}
+
+/// The repeat count and type letter of a binary-table TFORMn value (`rTa`).
+fn parse_tform(tform: &str) -> Option<(usize, char)> {
+    let t = tform.trim();
+    let digits = t.bytes().take_while(u8::is_ascii_digit).count();
+    let repeat = if digits == 0 {
+        1
+    } else {
+        t[..digits].parse().ok()?
+    };
+    let letter = t[digits..].chars().next()?.to_ascii_uppercase();
+    Some((repeat, letter))
+}
+
+/// Bytes of one cell of a binary-table column (FITS Standard 4.0 Table 18).
+fn tform_bytes(repeat: usize, letter: char) -> Option<usize> {
+    Some(match letter {
+        'L' | 'B' | 'A' => repeat,
+        'X' => repeat.div_ceil(8),
+        'I' => 2 * repeat,
+        'J' | 'E' => 4 * repeat,
+        'K' | 'D' | 'C' => 8 * repeat,
+        'M' => 16 * repeat,
+        'P' => 8 * repeat,
+        'Q' => 16 * repeat,
+        _ => return None,
+    })
+}
+
+/// The direct decoding of a column, if its cells need neither scaling nor null values.
+fn direct_kind(kind: &ReadKind, repeat: usize, letter: char, plain: bool) -> Option<Direct> {
+    if !plain {
+        return None;
+    }
+    match (kind, letter) {
+        (
+            ReadKind::Float {
+                scaled_integers: false,
+            },
+            'D',
+        ) if repeat == 1 => Some(Direct::F64),
+        (
+            ReadKind::Float {
+                scaled_integers: false,
+            },
+            'E',
+        ) if repeat == 1 => Some(Direct::F32),
+        (ReadKind::Int, 'B') if repeat == 1 => Some(Direct::U8),
+        (ReadKind::Int, 'I') if repeat == 1 => Some(Direct::I16),
+        (ReadKind::Int, 'J') if repeat == 1 => Some(Direct::I32),
+        (ReadKind::Int, 'K') if repeat == 1 => Some(Direct::I64),
+        (ReadKind::Bool, 'L') if repeat == 1 => Some(Direct::Bool),
+        (ReadKind::Str { width }, 'A') if *width == repeat => Some(Direct::Str(repeat)),
+        _ => None,
+    }
+}
+
+/// Decode rows `start..start + n` of a direct column from `raw` (n rows of `row_bytes`).
+fn decode_direct(
+    buffer: &mut ReadBuffer,
+    (offset, direct): (usize, Direct),
+    raw: &[u8],
+    row_bytes: usize,
+    start: usize,
+    n: usize,
+) -> Result<(), usize> {
+    let rows = raw.chunks_exact(row_bytes).take(n);
+    fn be<const W: usize>(row: &[u8], offset: usize) -> [u8; W] {
+        row[offset..offset + W].try_into().expect("cell width")
+    }
+    match (buffer, direct) {
+        (ReadBuffer::Float { values, .. }, Direct::F64) => {
+            for (v, row) in values[start..start + n].iter_mut().zip(rows) {
+                *v = f64::from_be_bytes(be(row, offset));
+            }
+        }
+        (ReadBuffer::Float { values, .. }, Direct::F32) => {
+            for (v, row) in values[start..start + n].iter_mut().zip(rows) {
+                *v = f32::from_be_bytes(be(row, offset)) as f64;
+            }
+        }
+        (ReadBuffer::Int { values, .. }, d) => {
+            for (v, row) in values[start..start + n].iter_mut().zip(rows) {
+                *v = match d {
+                    Direct::U8 => row[offset] as i64,
+                    Direct::I16 => i16::from_be_bytes(be(row, offset)) as i64,
+                    Direct::I32 => i32::from_be_bytes(be(row, offset)) as i64,
+                    _ => i64::from_be_bytes(be(row, offset)),
+                };
+            }
+        }
+        // As cfitsio: 'T' true, 'F' false, 0 null, any other byte true.
+        (ReadBuffer::Bool { values, nulls }, _) => {
+            for ((v, z), row) in values[start..start + n]
+                .iter_mut()
+                .zip(&mut nulls[start..start + n])
+                .zip(rows)
+            {
+                let b = row[offset];
+                *v = (b != b'F' && b != 0) as c_char;
+                *z = (b == 0) as c_char;
+            }
+        }
+        // As cfitsio: the text ends at the first NUL; trailing blanks are dropped; empty
+        // text is a null.
+        (ReadBuffer::Str { builder, .. }, Direct::Str(width)) => {
+            for (i, row) in rows.enumerate() {
+                let cell = &row[offset..offset + width];
+                let end = cell.iter().position(|&b| b == 0).unwrap_or(width);
+                let mut bytes = &cell[..end];
+                while let [rest @ .., b' '] = bytes {
+                    bytes = rest;
+                }
+                if bytes.is_empty() {
+                    builder.append_null();
+                } else {
+                    match std::str::from_utf8(bytes) {
+                        Ok(text) => builder.append_value(text),
+                        Err(_) => return Err(start + i),
+                    }
+                }
+            }
+        }
+        _ => unreachable!("direct kinds match their buffers"),
+    }
+    Ok(())
 }
 
 /// Per-column storage filled block by block.
@@ -634,6 +779,7 @@ fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Table, String> 
     };
 
     let mut columns = Vec::with_capacity(ncols);
+    let mut layout = Vec::with_capacity(ncols);
     let mut meta = std::collections::BTreeMap::new();
     let mut seen = HashSet::new();
     for i in 0..ncols {
@@ -663,8 +809,41 @@ fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Table, String> 
         if unit.is_some() || ucd.is_some() {
             meta.insert(name.clone(), ColumnMeta { unit, ucd });
         }
-        columns.push(ReadColumn { number, name, kind });
+        // Raw-byte decoding needs the cell's place in the row, and no scaling or null value.
+        let plain = ["TSCAL", "TZERO", "TNULL"]
+            .iter()
+            .map(|k| key(&format!("{k}{number}")))
+            .collect::<Result<Vec<_>, _>>()?
+            .iter()
+            .all(Option::is_none);
+        let cell = parse_tform(&tform).and_then(|(r, t)| Some((tform_bytes(r, t)?, r, t)));
+        let direct = cell.and_then(|(_, r, t)| direct_kind(&kind, r, t, plain));
+        layout.push(cell.map(|(bytes, _, _)| bytes));
+        columns.push(ReadColumn {
+            number,
+            name,
+            kind,
+            direct: direct.map(|d| (0, d)),
+        });
     }
+    // Offsets from the cell widths; if they do not add up to the row length (NAXIS1),
+    // every column goes through cfitsio.
+    let row_bytes: Option<usize> = key("NAXIS1")?.and_then(|v| v.trim().parse().ok());
+    let widths: Option<Vec<usize>> = layout.into_iter().collect();
+    match (row_bytes, widths) {
+        (Some(rb), Some(w)) if w.iter().sum::<usize>() == rb && rb > 0 => {
+            let mut offset = 0;
+            for (c, width) in columns.iter_mut().zip(w) {
+                if let Some((o, _)) = &mut c.direct {
+                    *o = offset;
+                }
+                offset += width;
+            }
+        }
+        _ => columns.iter_mut().for_each(|c| c.direct = None),
+    }
+    let row_bytes = row_bytes.unwrap_or(0);
+    let any_direct = columns.iter().any(|c| c.direct.is_some());
 
     let mut buffers: Vec<ReadBuffer> = columns
         .iter()
@@ -694,13 +873,62 @@ fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Table, String> 
         })
         .collect();
 
-    // One pass over the file: a block of rows at a time, every column of that block.
-    let block = file.block_rows().max(1);
+    // One pass over the file: a block of rows at a time, every column of that block. Plain
+    // columns are decoded (in parallel) from the block's raw bytes, read in one call; the
+    // others go through cfitsio's conversions.
+    let block = if any_direct {
+        ((8 << 20) / row_bytes.max(1)).max(1)
+    } else {
+        file.block_rows().max(1)
+    };
     let fptr = file.raw();
+    let mut raw: Vec<u8> = Vec::new();
     let mut start = 0;
     while start < nrows {
         let n = block.min(nrows - start);
+        if any_direct {
+            raw.clear();
+            raw.resize(n * row_bytes, 0);
+            let mut status = 0;
+            // SAFETY: open handle on this table; `raw` holds exactly n rows of NAXIS1 bytes.
+            unsafe {
+                sys::ffgtbb(
+                    fptr,
+                    (start + 1) as i64,
+                    1,
+                    (n * row_bytes) as i64,
+                    raw.as_mut_ptr(),
+                    &mut status,
+                )
+            };
+            ok(status).map_err(|s| {
+                format!(
+                    "{here}: cannot read rows {}–{}: {}",
+                    start + 1,
+                    start + n,
+                    status_text(s)
+                )
+            })?;
+            let bad = columns
+                .par_iter()
+                .zip(buffers.par_iter_mut())
+                .filter_map(|(c, b)| c.direct.map(|d| (c, b, d)))
+                .map(|(c, b, d)| {
+                    decode_direct(b, d, &raw, row_bytes, start, n).map_err(|row| (c, row))
+                })
+                .find_first(Result::is_err);
+            if let Some(Err((column, row))) = bad {
+                return Err(format!(
+                    "{here}: column '{}', row {}: the string is not valid UTF-8 (or ASCII) text",
+                    column.name,
+                    row + 1
+                ));
+            }
+        }
         for (column, buffer) in columns.iter().zip(buffers.iter_mut()) {
+            if column.direct.is_some() {
+                continue;
+            }
             let mut status = 0;
             let mut anynul: c_int = 0;
             let first_row = (start + 1) as i64;
@@ -1300,64 +1528,100 @@ fn write_table_hdu(
         .collect();
     let row_bytes: usize = widths.iter().sum();
     let block = ((4 << 20) / row_bytes.max(1)).max(1);
-    let mut buffer: Vec<u8> = Vec::new();
-    let mut start = 0;
-    while start < nrows {
-        let n = block.min(nrows - start);
-        let end = start + n;
+    // Rows `start..start + n` into `buffer`, in parallel over groups of rows.
+    let fill = |buffer: &mut Vec<u8>, start: usize, n: usize| {
+        const GROUP: usize = 2048;
         buffer.clear();
         buffer.resize(n * row_bytes, 0);
-        let mut offset = 0;
-        for (column, width) in columns.iter().zip(&widths) {
-            let cells = buffer[offset..]
-                .chunks_mut(row_bytes)
-                .map(|row| &mut row[..*width]);
-            match &column.data {
-                WriteData::F64(v) => cells
-                    .zip(&v[start..end])
-                    .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
-                WriteData::F32(v) => cells
-                    .zip(&v[start..end])
-                    .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
-                WriteData::I64(v) => cells
-                    .zip(&v[start..end])
-                    .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
-                // FITS logical: 'T', 'F', or 0 for null.
-                WriteData::Bool(v) => cells.zip(&v[start..end]).for_each(|(c, x)| {
-                    c[0] = match *x {
-                        1 => b'T',
-                        0 => b'F',
-                        _ => 0,
-                    }
-                }),
-                // Strings are padded with blanks (a null is all blanks, read back as null).
-                WriteData::Str { values, .. } => {
-                    cells.zip(&values[start..end]).for_each(|(c, x)| {
-                        c.fill(b' ');
-                        if let Some(s) = x {
-                            c[..s.len()].copy_from_slice(s.as_bytes());
-                        }
-                    })
+        buffer
+            .par_chunks_mut(GROUP * row_bytes)
+            .enumerate()
+            .for_each(|(k, part)| fill_rows(part, columns, &widths, row_bytes, start + k * GROUP));
+    };
+    // The next block is filled on another thread while this one writes the current block.
+    std::thread::scope(|scope| {
+        let (full_tx, full_rx) = std::sync::mpsc::sync_channel::<(usize, usize, Vec<u8>)>(1);
+        let (empty_tx, empty_rx) = std::sync::mpsc::channel::<Vec<u8>>();
+        scope.spawn(move || {
+            let mut start = 0;
+            while start < nrows {
+                let n = block.min(nrows - start);
+                let mut buffer = empty_rx.try_recv().unwrap_or_default();
+                fill(&mut buffer, start, n);
+                // The writer hung up after an error: stop.
+                if full_tx.send((start, n, buffer)).is_err() {
+                    break;
                 }
+                start += n;
             }
-            offset += width;
+        });
+        for (start, n, mut buffer) in full_rx {
+            let mut status = 0;
+            // SAFETY: open handle on the table (the last HDU, no heap, so cfitsio extends
+            // it); `buffer` holds exactly `n` rows of `row_bytes`, which cfitsio only reads.
+            unsafe {
+                sys::ffptbb(
+                    fptr,
+                    (start + 1) as i64,
+                    1,
+                    (n * row_bytes) as i64,
+                    buffer.as_mut_ptr(),
+                    &mut status,
+                )
+            };
+            ok(status)
+                .map_err(|s| fail(&format!("cannot write rows {}–{}", start + 1, start + n), s))?;
+            let _ = empty_tx.send(buffer);
         }
-        // SAFETY: open handle on the table (the last HDU, no heap, so cfitsio extends it);
-        // `buffer` holds exactly `n` rows of `row_bytes`, which cfitsio only reads.
-        unsafe {
-            sys::ffptbb(
-                fptr,
-                (start + 1) as i64,
-                1,
-                (n * row_bytes) as i64,
-                buffer.as_mut_ptr(),
-                &mut status,
-            )
-        };
-        ok(status).map_err(|s| fail(&format!("cannot write rows {}–{}", start + 1, end), s))?;
-        start = end;
+        Ok(())
+    })
+}
+
+/// Whole rows from `start` into `part` (a multiple of `row_bytes`), in the FITS
+/// binary-table layout.
+fn fill_rows(
+    part: &mut [u8],
+    columns: &[WriteColumn<'_>],
+    widths: &[usize],
+    row_bytes: usize,
+    start: usize,
+) {
+    let n = part.len() / row_bytes;
+    let mut offset = 0;
+    for (column, width) in columns.iter().zip(widths) {
+        let cells = part[offset..]
+            .chunks_mut(row_bytes)
+            .map(|row| &mut row[..*width]);
+        match &column.data {
+            WriteData::F64(v) => cells
+                .zip(&v[start..start + n])
+                .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
+            WriteData::F32(v) => cells
+                .zip(&v[start..start + n])
+                .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
+            WriteData::I64(v) => cells
+                .zip(&v[start..start + n])
+                .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
+            // FITS logical: 'T', 'F', or 0 for null.
+            WriteData::Bool(v) => cells.zip(&v[start..start + n]).for_each(|(c, x)| {
+                c[0] = match *x {
+                    1 => b'T',
+                    0 => b'F',
+                    _ => 0,
+                }
+            }),
+            // Strings are padded with blanks (a null is all blanks, read back as null).
+            WriteData::Str { values, .. } => {
+                cells.zip(&values[start..start + n]).for_each(|(c, x)| {
+                    c.fill(b' ');
+                    if let Some(s) = x {
+                        c[..s.len()].copy_from_slice(s.as_bytes());
+                    }
+                })
+            }
+        }
+        offset += width;
     }
-    Ok(())
 }
 
 // ---------------------------------------------------------------------------------------------
