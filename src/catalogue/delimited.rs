@@ -17,19 +17,8 @@ const INFER_ROWS: usize = 10_000;
 /// not a failure).
 pub fn read_delimited(path: &Path, separator: u8) -> Result<Table, CatalogueError> {
     let read = |infer: Option<usize>| {
-        CsvReadOptions::default()
+        options(separator, infer)
             .with_has_header(true)
-            .with_infer_schema_length(infer)
-            .map_parse_options(|p| {
-                p.with_separator(separator)
-                    .with_comment_prefix(Some("#"))
-                    .with_missing_is_null(true)
-                    .with_null_values(Some(NullValues::AllColumns(vec![
-                        "".into(),
-                        "NA".into(),
-                        "null".into(),
-                    ])))
-            })
             .try_into_reader_with_file_path(Some(path.to_path_buf()))
             .and_then(|r| r.finish())
     };
@@ -45,10 +34,29 @@ pub fn read_delimited(path: &Path, separator: u8) -> Result<Table, CatalogueErro
     })
 }
 
+/// The parse options shared by every way of reading.
+fn options(separator: u8, infer: Option<usize>) -> CsvReadOptions {
+    CsvReadOptions::default()
+        .with_infer_schema_length(infer)
+        .map_parse_options(|p| {
+            p.with_separator(separator)
+                .with_comment_prefix(Some("#"))
+                .with_missing_is_null(true)
+                .with_null_values(Some(NullValues::AllColumns(vec![
+                    "".into(),
+                    "NA".into(),
+                    "null".into(),
+                ])))
+        })
+}
+
 /// Write a delimited file with a header line; floats at full precision.
 pub fn write_delimited(file: &File, table: &Table, separator: u8) -> Result<(), String> {
     let mut df = table.frame.clone();
+    // Large batches: each is serialised in parallel, then written; polars' default (1024
+    // rows) spends much of its time starting and joining the parallel work.
     CsvWriter::new(file)
+        .with_batch_size(std::num::NonZeroUsize::new(16_384).expect("non-zero"))
         .include_header(true)
         .with_separator(separator)
         .finish(&mut df)

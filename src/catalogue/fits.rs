@@ -112,8 +112,6 @@ const TCOMPLEX: c_int = 83;
 const TDBLCOMPLEX: c_int = 163;
 /// cfitsio keeps file names in buffers of this size (FLEN_FILENAME), terminator included.
 const MAX_PATH_BYTES: usize = 1024;
-/// Value written to a logical cell to mark it null (`ffpcnl`'s "null value").
-const BOOL_NULL_MARK: c_char = 2;
 /// Rows per block when cfitsio cannot suggest a number.
 const FALLBACK_BLOCK_ROWS: usize = 10_000;
 
@@ -1239,23 +1237,25 @@ fn read_provenance_cards(file: &FitsHandle, hdu: &HduSummary) -> Result<Provenan
 // ---------------------------------------------------------------------------------------------
 
 /// One column ready for cfitsio.
-struct WriteColumn<'a> {
+struct WriteColumn {
     name: String,
     tform: String,
     tnull: Option<i64>,
     unit: Option<String>,
     ucd: Option<String>,
-    data: WriteData<'a>,
+    data: WriteData,
 }
 
-enum WriteData<'a> {
-    /// Borrowed when the column is one contiguous chunk without nulls.
-    F64(std::borrow::Cow<'a, [f64]>),
-    F32(Vec<f32>),
-    I64(Vec<i64>),
-    Bool(Vec<c_char>),
+/// A column's cells, held as polars arrays (shared buffers, not copies); rows are converted
+/// block by block while the file is written.
+enum WriteData {
+    F64(Float64Chunked),
+    F32(Float32Chunked),
+    /// With the value written for nulls (the column's TNULLn).
+    I64(Int64Chunked, i64),
+    Bool(BooleanChunked),
     Str {
-        values: Vec<Option<&'a str>>,
+        values: StringChunked,
         width: usize,
     },
 }
@@ -1264,7 +1264,7 @@ fn header_text_ok(s: &str) -> bool {
     s.bytes().all(|b| (0x20..=0x7e).contains(&b))
 }
 
-fn prepare_columns(table: &Table) -> Result<Vec<WriteColumn<'_>>, String> {
+fn prepare_columns(table: &Table) -> Result<Vec<WriteColumn>, String> {
     let mut out = Vec::with_capacity(table.frame.width());
     for column in table.frame.columns() {
         let name = column.name().as_str();
@@ -1300,32 +1300,12 @@ fn prepare_columns(table: &Table) -> Result<Vec<WriteColumn<'_>>, String> {
         let dtype = series.dtype();
         let polars_err = |e: PolarsError| format!("column '{name}': {e}");
         let (tform, tnull, data) = if *dtype == DataType::Float32 {
-            let ca = series.f32().map_err(polars_err)?;
-            let values = ca.iter().map(|v| v.unwrap_or(f32::NAN)).collect();
-            ("1E".to_string(), None, WriteData::F32(values))
-        } else if *dtype == DataType::Float64
-            && series.null_count() == 0
-            && series
-                .f64()
-                .map(|c| c.cont_slice().is_ok())
-                .unwrap_or(false)
-        {
-            let ca = series.f64().map_err(polars_err)?;
-            let slice = ca.cont_slice().map_err(polars_err)?;
-            (
-                "1D".to_string(),
-                None,
-                WriteData::F64(std::borrow::Cow::Borrowed(slice)),
-            )
+            let ca = series.f32().map_err(polars_err)?.clone();
+            ("1E".to_string(), None, WriteData::F32(ca))
         } else if dtype.is_float() || *dtype == DataType::Null {
             let cast = series.cast(&DataType::Float64).map_err(polars_err)?;
-            let ca = cast.f64().map_err(polars_err)?;
-            let values = ca.iter().map(|v| v.unwrap_or(f64::NAN)).collect();
-            (
-                "1D".to_string(),
-                None,
-                WriteData::F64(std::borrow::Cow::Owned(values)),
-            )
+            let ca = cast.f64().map_err(polars_err)?.clone();
+            ("1D".to_string(), None, WriteData::F64(ca))
         } else if dtype.is_integer() {
             let cast = series.strict_cast(&DataType::Int64).map_err(|_| {
                 format!(
@@ -1333,27 +1313,17 @@ fn prepare_columns(table: &Table) -> Result<Vec<WriteColumn<'_>>, String> {
                      range that FITS K columns hold"
                 )
             })?;
-            let ca = cast.i64().map_err(polars_err)?;
-            let tnull = (ca.null_count() > 0).then(|| unused_integer(ca));
+            let ca = cast.i64().map_err(polars_err)?.clone();
+            let tnull = (ca.null_count() > 0).then(|| unused_integer(&ca));
             let fill = tnull.unwrap_or(0);
-            let values = ca.iter().map(|v| v.unwrap_or(fill)).collect();
-            ("1K".to_string(), tnull, WriteData::I64(values))
+            ("1K".to_string(), tnull, WriteData::I64(ca, fill))
         } else if *dtype == DataType::Boolean {
-            let ca = series.bool().map_err(polars_err)?;
-            let values = ca
-                .iter()
-                .map(|v| match v {
-                    Some(true) => 1,
-                    Some(false) => 0,
-                    None => BOOL_NULL_MARK,
-                })
-                .collect();
-            ("1L".to_string(), None, WriteData::Bool(values))
+            let ca = series.bool().map_err(polars_err)?.clone();
+            ("1L".to_string(), None, WriteData::Bool(ca))
         } else if *dtype == DataType::String {
-            let ca = series.str().map_err(polars_err)?;
-            let values: Vec<Option<&str>> = ca.iter().collect();
+            let ca = series.str().map_err(polars_err)?.clone();
             let mut width = 1;
-            for (row, v) in values.iter().enumerate() {
+            for (row, v) in ca.iter().enumerate() {
                 if let Some(s) = v {
                     if s.as_bytes().contains(&0) {
                         return Err(format!(
@@ -1365,7 +1335,11 @@ fn prepare_columns(table: &Table) -> Result<Vec<WriteColumn<'_>>, String> {
                     width = width.max(s.len());
                 }
             }
-            (format!("{width}A"), None, WriteData::Str { values, width })
+            (
+                format!("{width}A"),
+                None,
+                WriteData::Str { values: ca, width },
+            )
         } else {
             return Err(format!(
                 "column '{name}' has type {dtype}, which the FITS writer does not store; cast \
@@ -1424,7 +1398,7 @@ fn provenance_cards(
 fn write_table_hdu(
     file: &FitsHandle,
     nrows: usize,
-    columns: &[WriteColumn<'_>],
+    columns: &[WriteColumn],
     provenance: &[(String, String, &'static str)],
 ) -> Result<(), String> {
     let fptr = file.raw();
@@ -1520,7 +1494,7 @@ fn write_table_hdu(
     let widths: Vec<usize> = columns
         .iter()
         .map(|c| match &c.data {
-            WriteData::F64(_) | WriteData::I64(_) => 8,
+            WriteData::F64(_) | WriteData::I64(..) => 8,
             WriteData::F32(_) => 4,
             WriteData::Bool(_) => 1,
             WriteData::Str { width, .. } => *width,
@@ -1581,7 +1555,7 @@ fn write_table_hdu(
 /// binary-table layout.
 fn fill_rows(
     part: &mut [u8],
-    columns: &[WriteColumn<'_>],
+    columns: &[WriteColumn],
     widths: &[usize],
     row_bytes: usize,
     start: usize,
@@ -1592,32 +1566,44 @@ fn fill_rows(
         let cells = part[offset..]
             .chunks_mut(row_bytes)
             .map(|row| &mut row[..*width]);
+        let (from, len) = (start as i64, n);
         match &column.data {
-            WriteData::F64(v) => cells
-                .zip(&v[start..start + n])
-                .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
-            WriteData::F32(v) => cells
-                .zip(&v[start..start + n])
-                .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
-            WriteData::I64(v) => cells
-                .zip(&v[start..start + n])
-                .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
+            WriteData::F64(ca) => {
+                let part = ca.slice(from, len);
+                match part.cont_slice() {
+                    Ok(v) => cells
+                        .zip(v)
+                        .for_each(|(c, x)| c.copy_from_slice(&x.to_be_bytes())),
+                    // Nulls are written as NaN (FITS floats have no other null).
+                    Err(_) => cells
+                        .zip(part.iter())
+                        .for_each(|(c, x)| c.copy_from_slice(&x.unwrap_or(f64::NAN).to_be_bytes())),
+                }
+            }
+            WriteData::F32(ca) => cells
+                .zip(ca.slice(from, len).iter())
+                .for_each(|(c, x)| c.copy_from_slice(&x.unwrap_or(f32::NAN).to_be_bytes())),
+            WriteData::I64(ca, fill) => cells
+                .zip(ca.slice(from, len).iter())
+                .for_each(|(c, x)| c.copy_from_slice(&x.unwrap_or(*fill).to_be_bytes())),
             // FITS logical: 'T', 'F', or 0 for null.
-            WriteData::Bool(v) => cells.zip(&v[start..start + n]).for_each(|(c, x)| {
-                c[0] = match *x {
-                    1 => b'T',
-                    0 => b'F',
-                    _ => 0,
+            WriteData::Bool(ca) => cells.zip(ca.slice(from, len).iter()).for_each(|(c, x)| {
+                c[0] = match x {
+                    Some(true) => b'T',
+                    Some(false) => b'F',
+                    None => 0,
                 }
             }),
             // Strings are padded with blanks (a null is all blanks, read back as null).
             WriteData::Str { values, .. } => {
-                cells.zip(&values[start..start + n]).for_each(|(c, x)| {
-                    c.fill(b' ');
-                    if let Some(s) = x {
-                        c[..s.len()].copy_from_slice(s.as_bytes());
-                    }
-                })
+                cells
+                    .zip(values.slice(from, len).iter())
+                    .for_each(|(c, x)| {
+                        c.fill(b' ');
+                        if let Some(s) = x {
+                            c[..s.len()].copy_from_slice(s.as_bytes());
+                        }
+                    })
             }
         }
         offset += width;

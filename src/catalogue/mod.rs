@@ -137,8 +137,10 @@ pub fn sidecar_path(output: &Path) -> PathBuf {
 }
 
 /// Write a table atomically: into a temporary file in the output's folder, then renamed
-/// over the destination. Refuses to write over an input, or over an existing file without
-/// `force`.
+/// over the destination, so that no reader ever sees a partial file. Refuses to write over
+/// an input, or over an existing file without `force`. Files are not forced to disk
+/// (no fsync), as for the FITS writer: a machine crash right after a run can lose the new
+/// output, which the run (seeded, reproducible) can write again.
 pub fn write_table(
     path: &Path,
     table: &Table,
@@ -207,7 +209,6 @@ pub fn write_table(
             .map_err(|e| CatalogueError::write(path, e))?,
         Format::Fits => unreachable!(),
     }
-    tmp.as_file().sync_all().ok();
     set_readable(tmp.path());
     if matches!(format, Format::Csv | Format::Tsv) {
         write_json_atomically(

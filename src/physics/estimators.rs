@@ -145,6 +145,9 @@ struct CosmologicalSolution {
     dz_dzc: f64,
     /// Luminosity distance in play, Mpc.
     d_l: f64,
+    /// D_C(z_cos), Mpc, and dD_C/dz there.
+    d_c: f64,
+    dc_z: f64,
 }
 
 /// D_L (Mpc) and dD_L/dq for luminosity-type inputs (μ or D_L).
@@ -176,8 +179,18 @@ pub fn cosmological_redshift(
     obs: &Observation,
     convention: DlConvention,
 ) -> Result<f64, PhysicsError> {
+    let (d_l, _) = luminosity_input(&obs.distance)?;
+    invert_for_redshift(cosmo, obs, convention, d_l)
+}
+
+/// [`cosmological_redshift`] with the luminosity distance of a μ or D_L input already known.
+fn invert_for_redshift(
+    cosmo: &Cosmology,
+    obs: &Observation,
+    convention: DlConvention,
+    d_l: f64,
+) -> Result<f64, PhysicsError> {
     let d = obs.distance;
-    let (d_l, _) = luminosity_input(&d)?;
     let zh1 = obs.z_helio.one_plus();
     let zc1 = obs.z_cmb.one_plus();
     match d.kind {
@@ -198,16 +211,16 @@ fn solve_cosmological(
     convention: DlConvention,
 ) -> Result<CosmologicalSolution, PhysicsError> {
     let d = obs.distance;
-    let z = cosmological_redshift(cosmo, obs, convention)?;
     let (d_l, dl_dq) = luminosity_input(&d)?;
+    let z = invert_for_redshift(cosmo, obs, convention, d_l)?;
     let zh1 = obs.z_helio.one_plus();
     let zc1 = obs.z_cmb.one_plus();
     let d_h = cosmo.hubble_distance();
     let dc = cosmo.comoving_distance(z)?;
     let dm = cosmo.transverse_from_comoving(dc);
-    // dD_M/dz = dD_M/dD_C · D_H/E.
-    let dm_z = cosmo.transverse_derivative(dc) * d_h / cosmo.efunc(z);
+    // dD_C/dz = D_H/E; dD_M/dz = dD_M/dD_C · dD_C/dz.
     let dc_z = d_h / cosmo.efunc(z);
+    let dm_z = cosmo.transverse_derivative(dc) * dc_z;
     let (dz_dq, dz_dzh, dz_dzc, d_l) = match d.kind {
         DistanceKind::Mu | DistanceKind::Dl => match convention {
             // G = (1+z) D_M = D_L.
@@ -250,6 +263,8 @@ fn solve_cosmological(
         dz_dzh,
         dz_dzc,
         d_l,
+        d_c: dc,
+        dc_z,
     })
 }
 
@@ -280,14 +295,14 @@ pub fn peculiar_velocity(
     let var_v = (dv * dzp_dzh * obs.z_err).powi(2) + (dv * dzp_dq * obs.distance.error).powi(2);
     let v_pec_err = (var_v + options.sigma_star_km_s.powi(2)).sqrt();
 
-    let d_c = cosmo.comoving_distance(sol.z_cos)?;
+    let d_c = sol.d_c;
     let dc_obs = cosmo.comoving_distance(obs.z_cmb.value().max(0.0))?;
     let eta = if obs.distance.kind == DistanceKind::Eta {
         obs.distance.value
     } else {
         (dc_obs / d_c).log10()
     };
-    let dc_z = cosmo.comoving_distance_derivative(sol.z_cos);
+    let dc_z = sol.dc_z;
     let dcobs_z = cosmo.comoving_distance_derivative(obs.z_cmb.value());
     let deta_dzh = (dcobs_z / dc_obs * k - dc_z / d_c * dzcos_dzh) / LN10;
     let deta_dq = -dc_z / d_c * sol.dz_dq / LN10;

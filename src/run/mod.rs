@@ -153,7 +153,9 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
         .map_err(|e| format!("{}: {e}", req.input.display()))?;
     let mut input =
         pipeline::extract(&table, &plan).map_err(|e| format!("{}: {e}", req.input.display()))?;
-    let uncorrected_distance = input.distance.clone();
+    // Groups combine the members' own distances: keep them when Malmquist changes them.
+    let uncorrected_distance =
+        (cfg.groups.is_some() && cfg.malmquist.is_some()).then(|| input.distance.clone());
 
     // The distance table must cover the redshifts in play.
     let z_top = input
@@ -267,7 +269,9 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
     let grouped = match &cfg.groups {
         Some(gc) => {
             let mut source = input.clone();
-            source.distance = uncorrected_distance;
+            if let Some(d) = uncorrected_distance {
+                source.distance = d;
+            }
             let (gt, g, note) = stages::group_table(
                 &ctx,
                 &table,
