@@ -37,12 +37,12 @@ fn sample_of(m: &MockCatalogue) -> FlowSample {
     let c = cosmology();
     let n = m.len();
     let input = InputColumns {
-        ra_deg: m.ra.clone(),
-        dec_deg: m.dec.clone(),
-        z_helio: m.z_helio.clone(),
-        z_err: m.z_err.clone(),
-        distance: m.mu.clone(),
-        distance_err: m.mu_err.clone(),
+        ra_deg: m.ra.clone().into(),
+        dec_deg: m.dec.clone().into(),
+        z_helio: m.z_helio.clone().into(),
+        z_err: m.z_err.clone().into(),
+        distance: m.mu.clone().into(),
+        distance_err: m.mu_err.clone().into(),
         distance_kind: DistanceKind::Mu,
         status: vec![0; n],
         error_missing: vec![false; n],

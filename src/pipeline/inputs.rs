@@ -1,5 +1,7 @@
 //! Input columns → contiguous `f64` slices in canonical units, with a status per row.
 
+use std::borrow::Cow;
+
 use polars::prelude::*;
 
 use crate::catalogue::Table;
@@ -11,16 +13,17 @@ use crate::plan::{AngleUnit, ColumnPlan, RedshiftUnit};
 use super::status::RowStatus;
 
 /// The columns the physics needs, one value per row. Missing values are NaN, and the row's
-/// status says why.
+/// status says why. A column that is already a complete f64 column in canonical units is
+/// borrowed from the table, not copied.
 #[derive(Debug, Clone)]
-pub struct InputColumns {
-    pub ra_deg: Vec<f64>,
-    pub dec_deg: Vec<f64>,
-    pub z_helio: Vec<f64>,
+pub struct InputColumns<'a> {
+    pub ra_deg: Cow<'a, [f64]>,
+    pub dec_deg: Cow<'a, [f64]>,
+    pub z_helio: Cow<'a, [f64]>,
     /// 1σ of z_helio; 0 when there is no error column, NaN when the row's entry is missing.
-    pub z_err: Vec<f64>,
-    pub distance: Vec<f64>,
-    pub distance_err: Vec<f64>,
+    pub z_err: Cow<'a, [f64]>,
+    pub distance: Cow<'a, [f64]>,
+    pub distance_err: Cow<'a, [f64]>,
     pub distance_kind: DistanceKind,
     pub status: Vec<u8>,
     /// Rows whose error entries are missing: their errors are reported as null.
@@ -38,16 +41,30 @@ pub(crate) enum Reading {
 /// Read a column as numbers: numeric types are cast, text is parsed entry by entry. Returns
 /// the values (NaN where missing or unparseable) and a per-row code: 0 fine, 1 missing,
 /// 2 unparseable.
-pub(crate) fn read_numbers(
-    table: &Table,
+pub(crate) fn read_numbers<'a>(
+    table: &'a Table,
     name: &str,
     how: Reading,
-) -> Result<(Vec<f64>, Vec<u8>), String> {
+) -> Result<(Cow<'a, [f64]>, Vec<u8>), String> {
     let col = table
         .frame
         .column(name)
         .map_err(|e| format!("column {name}: {e}"))?;
     let n = col.len();
+    // A complete f64 column (one chunk, no nulls, every value finite) in canonical units is
+    // used as it is.
+    let canonical = !matches!(
+        how,
+        Reading::Ra(Some(AngleUnit::Rad | AngleUnit::Sexagesimal))
+            | Reading::Dec(Some(AngleUnit::Rad | AngleUnit::Sexagesimal))
+    );
+    if canonical && col.dtype() == &DataType::Float64 && col.null_count() == 0 {
+        if let Ok(values) = col.f64().map_err(|e| e.to_string())?.cont_slice() {
+            if values.iter().all(|x| x.is_finite()) {
+                return Ok((Cow::Borrowed(values), vec![0u8; n]));
+            }
+        }
+    }
     let mut values = vec![f64::NAN; n];
     let mut codes = vec![0u8; n];
     match col.dtype() {
@@ -117,7 +134,7 @@ pub(crate) fn read_numbers(
         DataType::Null => codes.iter_mut().for_each(|c| *c = 1),
         other => return Err(format!("column {name} has type {other}; expected numbers")),
     }
-    Ok((values, codes))
+    Ok((Cow::Owned(values), codes))
 }
 
 fn worst(status: &mut u8, s: RowStatus) {
@@ -128,7 +145,7 @@ fn worst(status: &mut u8, s: RowStatus) {
 
 /// Extract and check the inputs. Errors here are about whole columns (wrong type, a unit
 /// that cannot be right); problems of single rows go into `status`.
-pub fn extract(table: &Table, plan: &ColumnPlan) -> Result<InputColumns, String> {
+pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'a>, String> {
     let n = table.frame.height();
     let mut status = vec![RowStatus::Ok as u8; n];
     let (ra, ra_c) = read_numbers(table, &plan.ra.column, Reading::Ra(plan.angle_unit))?;
@@ -137,11 +154,11 @@ pub fn extract(table: &Table, plan: &ColumnPlan) -> Result<InputColumns, String>
     let (dist, dist_c) = read_numbers(table, &plan.distance.column, Reading::Number)?;
     let (mut z_err, z_err_c) = match &plan.z_err {
         Some(r) => read_numbers(table, &r.column, Reading::Number)?,
-        None => (vec![0.0; n], vec![0; n]),
+        None => (Cow::Owned(vec![0.0; n]), vec![0; n]),
     };
     let (mut dist_err, dist_err_c) = match &plan.distance_err {
         Some(r) => read_numbers(table, &r.column, Reading::Number)?,
-        None => (vec![0.0; n], vec![0; n]),
+        None => (Cow::Owned(vec![0.0; n]), vec![0; n]),
     };
 
     // A redshift column that holds cz (or the reverse) is a whole-column mistake.
@@ -171,16 +188,20 @@ pub fn extract(table: &Table, plan: &ColumnPlan) -> Result<InputColumns, String>
         }
     }
     if plan.z_unit == RedshiftUnit::Cz {
-        z.iter_mut().for_each(|x| *x /= C_KM_S);
-        z_err.iter_mut().for_each(|x| *x /= C_KM_S);
+        z.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
+        z_err.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
     }
 
     let mut error_missing = vec![false; n];
     for i in 0..n {
         if z_err_c[i] == 1 || dist_err_c[i] == 1 {
             error_missing[i] = true;
-            z_err[i] = if z_err_c[i] == 1 { 0.0 } else { z_err[i] };
-            dist_err[i] = if dist_err_c[i] == 1 { 0.0 } else { dist_err[i] };
+            if z_err_c[i] == 1 {
+                z_err.to_mut()[i] = 0.0;
+            }
+            if dist_err_c[i] == 1 {
+                dist_err.to_mut()[i] = 0.0;
+            }
         }
         let s = &mut status[i];
         for c in [

@@ -455,12 +455,12 @@ mod tests {
             ] {
                 let zs = [0.01, 0.12, 0.9];
                 let input = InputColumns {
-                    ra_deg: vec![10.0, 150.0, 280.0],
-                    dec_deg: vec![-30.0, 20.0, 60.0],
-                    z_helio: zs.to_vec(),
-                    z_err: vec![1e-4, 5e-5, 0.0],
-                    distance: values.to_vec(),
-                    distance_err: errors.to_vec(),
+                    ra_deg: vec![10.0, 150.0, 280.0].into(),
+                    dec_deg: vec![-30.0, 20.0, 60.0].into(),
+                    z_helio: zs.to_vec().into(),
+                    z_err: vec![1e-4, 5e-5, 0.0].into(),
+                    distance: values.to_vec().into(),
+                    distance_err: errors.to_vec().into(),
                     distance_kind: kind,
                     status: vec![0; 3],
                     error_missing: vec![false; 3],

@@ -131,11 +131,11 @@ pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
     let (mut z, z_code) = read_numbers(&table, &z_c, Reading::Number).map_err(where_)?;
     let (mut z_err, _) = match &z_err_c {
         Some(c) => read_numbers(&table, c, Reading::Number).map_err(where_)?,
-        None => (vec![0.0; z.len()], vec![0; z.len()]),
+        None => (vec![0.0; z.len()].into(), vec![0; z.len()]),
     };
     if z_unit == RedshiftUnit::Cz {
-        z.iter_mut().for_each(|x| *x /= C_KM_S);
-        z_err.iter_mut().for_each(|x| *x /= C_KM_S);
+        z.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
+        z_err.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
     }
     let z_top = z
         .iter()

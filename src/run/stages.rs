@@ -143,7 +143,7 @@ pub fn apply_malmquist(
             DistanceKind::Eta => q - f.log10(),
         };
         corrected[i] = c;
-        input.distance[i] = c;
+        input.distance.to_mut()[i] = c;
     }
     let mut note = match method {
         MalmquistMethod::Homogeneous => "Distances corrected for homogeneous Malmquist bias, E[r|d] = d exp(3.5 Δ²) (Lynden-Bell et al. 1988); v_pec uses the corrected distance, the input column keeps the uncorrected one.".to_string(),
@@ -223,16 +223,17 @@ pub fn group_table(
         .collect();
     // The group's own Malmquist correction, with the group's (smaller) distance error.
     let mut group_input = InputColumns {
-        ra_deg: g.ra_deg.clone(),
-        dec_deg: g.dec_deg.clone(),
-        z_helio: g.z_helio.clone(),
-        z_err: g.z_err.clone(),
-        distance: g.distance.clone(),
+        ra_deg: g.ra_deg.clone().into(),
+        dec_deg: g.dec_deg.clone().into(),
+        z_helio: g.z_helio.clone().into(),
+        z_err: g.z_err.clone().into(),
+        distance: g.distance.clone().into(),
         distance_err: g
             .distance_err
             .iter()
             .map(|e| if e.is_finite() { *e } else { 0.0 })
-            .collect(),
+            .collect::<Vec<f64>>()
+            .into(),
         distance_kind: input.distance_kind,
         status: status.clone(),
         error_missing: g.distance_err.iter().map(|e| !e.is_finite()).collect(),

@@ -14,7 +14,7 @@ use flowsift::physics::restframe::{default_apex, Boost, BoostMethod};
 use flowsift::physics::sky::SkyRotations;
 use flowsift::pipeline::{derive, montecarlo, InputColumns};
 
-fn inputs(n: usize) -> (Cosmology, InputColumns) {
+fn inputs(n: usize) -> (Cosmology, InputColumns<'static>) {
     let cosmology = Cosmology::new(CosmologyParams::flat_lcdm(70.0, 0.3)).unwrap();
     let spec = MockSpec {
         n,
@@ -23,12 +23,12 @@ fn inputs(n: usize) -> (Cosmology, InputColumns) {
     let cmb = Boost::new(&default_apex("cmb")).unwrap();
     let m = generate(&spec, &cosmology, &cmb, DlConvention::Observed).unwrap();
     let input = InputColumns {
-        ra_deg: m.ra,
-        dec_deg: m.dec,
-        z_helio: m.z_helio,
-        z_err: m.z_err,
-        distance: m.mu,
-        distance_err: m.mu_err,
+        ra_deg: m.ra.into(),
+        dec_deg: m.dec.into(),
+        z_helio: m.z_helio.into(),
+        z_err: m.z_err.into(),
+        distance: m.mu.into(),
+        distance_err: m.mu_err.into(),
         distance_kind: DistanceKind::Mu,
         status: vec![0; n],
         error_missing: vec![false; n],
