@@ -70,6 +70,7 @@ use std::ptr;
 use fitsio::sys;
 use polars::prelude::*;
 
+use super::cfitsio::{ok, status_text, FitsHandle};
 use super::{
     read_table, set_readable, write_table, CatalogueError, ColumnMeta, Format, Provenance,
     ReadOptions, Table, WriteOptions,
@@ -90,7 +91,6 @@ const ORIGIN_KEYS: [&str; 3] = ["FS_ORIG1", "FS_ORIG2", "FS_ORIG3"];
 const TABLE_COLUMNS: [&str; 6] = ["x", "y", "z", "vx", "vy", "vz"];
 
 // cfitsio constants.
-const READONLY: c_int = 0;
 const IMAGE_HDU: c_int = 0;
 const ANY_HDU: c_int = -1;
 const BYTE_IMG: c_int = 8;
@@ -99,7 +99,6 @@ const TDOUBLE: c_int = 82;
 const KEY_NO_EXIST: c_int = 202;
 const BAD_HDU_NUM: c_int = 301;
 const FLEN_VALUE: usize = 71;
-const MAX_PATH_BYTES: usize = 1024;
 /// Values per cfitsio write call.
 const WRITE_CHUNK: usize = 1 << 16;
 
@@ -121,7 +120,7 @@ pub fn read_field(
     }
     let err = |m: String| CatalogueError::read(path, m);
     if Format::from_path(path)? == Format::Fits {
-        let file = Fits::open(path).map_err(err)?;
+        let file = FitsHandle::open(path).map_err(err)?;
         if file.find_hdu(EXTNAMES[0]).map_err(err)?.is_some() {
             return read_image_form(&file, axes_hint, unit_hint).map_err(err);
         }
@@ -208,7 +207,7 @@ pub fn write_field_fits(path: &Path, grid: &VelocityGrid) -> Result<(), Catalogu
     drop(tmp);
     std::fs::remove_file(&tmp_path).ok();
 
-    let result = Fits::create(&tmp_path, compress).and_then(|file| {
+    let result = FitsHandle::create(&tmp_path, compress).and_then(|file| {
         write_image_form(&file, grid)?;
         file.close()
             .map_err(|s| format!("cannot finish writing the file: {}", status_text(s)))
@@ -362,7 +361,7 @@ struct Cards {
 }
 
 impl Cards {
-    fn read(file: &Fits, hdu: &str) -> Result<Cards, String> {
+    fn read(file: &FitsHandle, hdu: &str) -> Result<Cards, String> {
         let mut c = Cards::default();
         for (a, key) in ORIGIN_KEYS.iter().enumerate() {
             c.origin[a] = file.key_f64(key).map_err(|m| format!("{hdu}: {m}"))?;
@@ -508,7 +507,7 @@ fn resolve_geometry(
 }
 
 fn read_image_form(
-    file: &Fits,
+    file: &FitsHandle,
     axes_hint: Option<FieldAxes>,
     unit_hint: Option<LengthUnit>,
 ) -> Result<VelocityGrid, String> {
@@ -576,7 +575,7 @@ fn describe(g: &Geometry) -> String {
     )
 }
 
-fn write_geometry_cards(file: &Fits, grid: &VelocityGrid) -> Result<(), String> {
+fn write_geometry_cards(file: &FitsHandle, grid: &VelocityGrid) -> Result<(), String> {
     let labels = ["x", "y", "z"];
     for a in 0..3 {
         file.write_f64(
@@ -594,7 +593,7 @@ fn write_geometry_cards(file: &Fits, grid: &VelocityGrid) -> Result<(), String> 
     )
 }
 
-fn write_image_form(file: &Fits, grid: &VelocityGrid) -> Result<(), String> {
+fn write_image_form(file: &FitsHandle, grid: &VelocityGrid) -> Result<(), String> {
     let st = |what: &str| {
         let what = what.to_string();
         move |s: c_int| format!("cannot write {what}: {}", status_text(s))
@@ -604,8 +603,13 @@ fn write_image_form(file: &Fits, grid: &VelocityGrid) -> Result<(), String> {
     file.write_str("FS_FORM", FORMAT_NAME, "file format")?;
     file.write_i64("FS_VERS", FORMAT_VERSION, "file format version")?;
     write_geometry_cards(file, grid)?;
-    file.write_comment("Velocity field: images VX, VY, VZ (km/s), x fastest; cell (i,j,k)")?;
-    file.write_comment("is centred at FS_ORIGn + (i,j,k)*FS_SPACE, in FS_LUNIT.")?;
+    for text in [
+        "Velocity field: images VX, VY, VZ (km/s), x fastest; cell (i,j,k)",
+        "is centred at FS_ORIGn + (i,j,k)*FS_SPACE, in FS_LUNIT.",
+    ] {
+        file.write_comment(text)
+            .map_err(|s| format!("cannot write a comment: {}", status_text(s)))?;
+    }
 
     let ctypes = match grid.axes {
         FieldAxes::Supergalactic => ["SGX", "SGY", "SGZ"],
@@ -953,140 +957,14 @@ fn grid_from_table(
 }
 
 // ---------------------------------------------------------------------------------------------
-// A minimal cfitsio handle for images and header cards
+// Image and header-card calls on the shared cfitsio handle
 // ---------------------------------------------------------------------------------------------
-
-/// An open cfitsio file, closed (ignoring errors) on drop or by [`Fits::close`].
-struct Fits {
-    ptr: std::cell::Cell<*mut sys::fitsfile>,
-}
-
-impl Drop for Fits {
-    fn drop(&mut self) {
-        let _ = self.close();
-    }
-}
-
-fn ok(status: c_int) -> Result<(), c_int> {
-    if status == 0 {
-        Ok(())
-    } else {
-        Err(status)
-    }
-}
-
-/// cfitsio's short text for a status code, with the code.
-fn status_text(status: c_int) -> String {
-    let mut buf = [0 as c_char; 32];
-    // SAFETY: ffgerr writes at most 30 characters and a terminator (FLEN_STATUS = 31).
-    unsafe { sys::ffgerr(status, buf.as_mut_ptr()) };
-    let text = unsafe { CStr::from_ptr(buf.as_ptr()) }
-        .to_string_lossy()
-        .into_owned();
-    if text.is_empty() {
-        format!("cfitsio status {status}")
-    } else {
-        format!("{text} (cfitsio status {status})")
-    }
-}
-
-fn path_text(path: &Path) -> Result<&str, String> {
-    let text = path
-        .to_str()
-        .ok_or_else(|| "the path is not valid UTF-8, which cfitsio needs".to_string())?;
-    if text.len() >= MAX_PATH_BYTES {
-        return Err(format!(
-            "the path is too long for cfitsio (at most {} bytes)",
-            MAX_PATH_BYTES - 1
-        ));
-    }
-    Ok(text)
-}
 
 fn c_string(text: &str) -> Result<CString, String> {
     CString::new(text).map_err(|_| format!("'{text}' contains a NUL byte"))
 }
 
-impl Fits {
-    fn open(path: &Path) -> Result<Fits, String> {
-        if path.is_dir() {
-            return Err("is a folder, not a FITS file".to_string());
-        }
-        let c_path = c_string(path_text(path)?)?;
-        let mut fptr: *mut sys::fitsfile = ptr::null_mut();
-        let mut status = 0;
-        // SAFETY: valid C string and out-pointers. ffdkopn takes the name literally (no
-        // extended filename syntax) and decompresses gzip files.
-        unsafe { sys::ffdkopn(&mut fptr, c_path.as_ptr(), READONLY, &mut status) };
-        let file = Fits {
-            ptr: std::cell::Cell::new(fptr),
-        };
-        if status != 0 || fptr.is_null() {
-            return Err(format!("cannot open as FITS: {}", status_text(status)));
-        }
-        Ok(file)
-    }
-
-    fn create(path: &Path, compress: bool) -> Result<Fits, String> {
-        let absolute =
-            std::path::absolute(path).map_err(|e| format!("cannot resolve the path: {e}"))?;
-        let text = path_text(&absolute)?;
-        let name = if compress {
-            if text.contains('(') || text.contains('[') {
-                return Err(
-                    "a compressed (.gz) FITS output path must not contain '(' or '['; \
-                            choose another name or write an uncompressed .fits file"
-                        .to_string(),
-                );
-            }
-            format!("compressoutfile://{text}")
-        } else {
-            text.to_string()
-        };
-        let c_name = c_string(&name)?;
-        let mut fptr: *mut sys::fitsfile = ptr::null_mut();
-        let mut status = 0;
-        // SAFETY: valid C string and out-pointer. ffdkinit takes the name literally; ffinit
-        // parses it, which selects the compressing driver.
-        unsafe {
-            if compress {
-                sys::ffinit(&mut fptr, c_name.as_ptr(), &mut status);
-            } else {
-                sys::ffdkinit(&mut fptr, c_name.as_ptr(), &mut status);
-            }
-        }
-        let file = Fits {
-            ptr: std::cell::Cell::new(fptr),
-        };
-        if status != 0 || fptr.is_null() {
-            return Err(format!("cannot create the file: {}", status_text(status)));
-        }
-        Ok(file)
-    }
-
-    fn raw(&self) -> *mut sys::fitsfile {
-        self.ptr.get()
-    }
-
-    fn close(&self) -> Result<(), c_int> {
-        let fptr = self.ptr.replace(ptr::null_mut());
-        if fptr.is_null() {
-            return Ok(());
-        }
-        let mut status = 0;
-        // SAFETY: fptr came from ffdkopn/ffinit/ffdkinit and is closed exactly once.
-        unsafe { sys::ffclos(fptr, &mut status) };
-        ok(status)
-    }
-
-    fn move_to(&self, index: usize) -> Result<(), c_int> {
-        let mut hdu_type = 0;
-        let mut status = 0;
-        // SAFETY: open handle, valid out-pointers.
-        unsafe { sys::ffmahd(self.raw(), (index + 1) as c_int, &mut hdu_type, &mut status) };
-        ok(status)
-    }
-
+impl FitsHandle {
     /// Move to the first HDU named `name` (EXTNAME or HDUNAME, any case); its type, or
     /// `None` (position unchanged) if there is none.
     fn find_hdu(&self, name: &str) -> Result<Option<c_int>, String> {
@@ -1241,14 +1119,6 @@ impl Fits {
             )
         };
         ok(status).map_err(|s| format!("cannot write card {key}: {}", status_text(s)))
-    }
-
-    fn write_comment(&self, text: &str) -> Result<(), String> {
-        let c_text = c_string(text)?;
-        let mut status = 0;
-        // SAFETY: open handle, valid C string.
-        unsafe { sys::ffpcom(self.raw(), c_text.as_ptr(), &mut status) };
-        ok(status).map_err(|s| format!("cannot write a comment: {}", status_text(s)))
     }
 
     /// Append an image HDU (the primary array if the file is empty).

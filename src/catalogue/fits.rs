@@ -78,6 +78,7 @@ use fitsio::sys;
 use polars::prelude::*;
 use rayon::prelude::*;
 
+use super::cfitsio::{ok, status_text, FitsHandle};
 use super::{CatalogueError, ColumnMeta, Provenance, Table};
 
 /// `EXTNAME` of the table HDU that [`write_fits`] creates.
@@ -87,7 +88,6 @@ pub const EXTNAME: &str = "FLOWSIFT";
 pub const MAX_PROVENANCE_ENTRIES: usize = 9999;
 
 // cfitsio constants, as the C `int`s the functions take.
-const READONLY: c_int = 0;
 const IMAGE_HDU: c_int = 0;
 const ASCII_TBL: c_int = 1;
 const BINARY_TBL: c_int = 2;
@@ -110,8 +110,6 @@ const TLONGLONG: c_int = 81;
 const TDOUBLE: c_int = 82;
 const TCOMPLEX: c_int = 83;
 const TDBLCOMPLEX: c_int = 163;
-/// cfitsio keeps file names in buffers of this size (FLEN_FILENAME), terminator included.
-const MAX_PATH_BYTES: usize = 1024;
 /// Rows per block when cfitsio cannot suggest a number.
 const FALLBACK_BLOCK_ROWS: usize = 10_000;
 
@@ -177,114 +175,12 @@ pub fn write_fits(
 }
 
 // ---------------------------------------------------------------------------------------------
-// The cfitsio handle
+// Header and table calls on the shared cfitsio handle
 // ---------------------------------------------------------------------------------------------
 
-/// An open cfitsio file; closed (ignoring errors) when dropped, or explicitly by
-/// [`FitsHandle::close`] to learn whether the final flush (and compression) worked.
-struct FitsHandle {
-    ptr: std::cell::Cell<*mut sys::fitsfile>,
-}
-
 impl FitsHandle {
-    fn open(path: &Path) -> Result<FitsHandle, String> {
-        match std::fs::metadata(path) {
-            Err(e) if e.kind() == std::io::ErrorKind::NotFound => {
-                return Err("no such file".to_string())
-            }
-            Err(e) => return Err(format!("cannot read: {e}")),
-            Ok(m) if m.is_dir() => return Err("is a folder, not a FITS file".to_string()),
-            Ok(_) => {}
-        }
-        let c_path = c_path(path)?;
-        let mut fptr: *mut sys::fitsfile = ptr::null_mut();
-        let mut status = 0;
-        // SAFETY: c_path is a valid NUL-terminated string; fptr receives the new handle.
-        // ffdkopn takes the name literally (no extended filename syntax) but still
-        // recognises and decompresses gzip files.
-        unsafe { sys::ffdkopn(&mut fptr, c_path.as_ptr(), READONLY, &mut status) };
-        let handle = FitsHandle {
-            ptr: std::cell::Cell::new(fptr),
-        };
-        if status != 0 || fptr.is_null() {
-            return Err(format!("cannot open as FITS: {}", status_text(status)));
-        }
-        Ok(handle)
-    }
-
-    fn create(path: &Path, compress: bool) -> Result<FitsHandle, String> {
-        let absolute =
-            std::path::absolute(path).map_err(|e| format!("cannot resolve the path: {e}"))?;
-        let name = if compress {
-            let text = path_text(&absolute)?;
-            if text.contains('(') || text.contains('[') {
-                return Err(
-                    "a compressed (.gz) FITS output path must not contain '(' or '['; \
-                     choose another name or write an uncompressed .fits file"
-                        .to_string(),
-                );
-            }
-            // The explicit driver prefix makes cfitsio compress whatever the suffix's case.
-            format!("compressoutfile://{text}")
-        } else {
-            path_text(&absolute)?.to_string()
-        };
-        if name.len() >= MAX_PATH_BYTES {
-            return Err(format!(
-                "the path is too long for cfitsio (at most {} bytes)",
-                MAX_PATH_BYTES - 1
-            ));
-        }
-        let c_name = CString::new(name).map_err(|_| "the path contains a NUL byte".to_string())?;
-        let mut fptr: *mut sys::fitsfile = ptr::null_mut();
-        let mut status = 0;
-        // SAFETY: valid C string and out-pointer. ffdkinit takes the name literally; ffinit
-        // parses it, which is what selects the compressing driver.
-        unsafe {
-            if compress {
-                sys::ffinit(&mut fptr, c_name.as_ptr(), &mut status);
-            } else {
-                sys::ffdkinit(&mut fptr, c_name.as_ptr(), &mut status);
-            }
-        }
-        let handle = FitsHandle {
-            ptr: std::cell::Cell::new(fptr),
-        };
-        if status != 0 || fptr.is_null() {
-            return Err(format!("cannot create the file: {}", status_text(status)));
-        }
-        Ok(handle)
-    }
-
-    fn raw(&self) -> *mut sys::fitsfile {
-        self.ptr.get()
-    }
-
     /// Close, reporting the status of the final flush.
-    fn close(&self) -> Result<(), c_int> {
-        let fptr = self.ptr.replace(ptr::null_mut());
-        if fptr.is_null() {
-            return Ok(());
-        }
-        let mut status = 0;
-        // SAFETY: fptr came from ffdkopn/ffinit and is closed exactly once.
-        unsafe { sys::ffclos(fptr, &mut status) };
-        if status == 0 {
-            Ok(())
-        } else {
-            Err(status)
-        }
-    }
-
     /// Move to HDU `index` (0 = primary); returns the HDU type.
-    fn move_to(&self, index: usize) -> Result<c_int, c_int> {
-        let mut hdu_type = 0;
-        let mut status = 0;
-        // SAFETY: open handle; out-pointers are valid.
-        unsafe { sys::ffmahd(self.raw(), (index + 1) as c_int, &mut hdu_type, &mut status) };
-        ok(status).map(|()| hdu_type)
-    }
-
     /// A keyword's value as text (long-string convention understood), `None` if absent.
     fn key_text(&self, key: &str) -> Result<Option<String>, c_int> {
         let c_key = CString::new(key).expect("keyword names have no NUL");
@@ -352,7 +248,7 @@ impl FitsHandle {
         ok(status)
     }
 
-    fn write_comment(&self, text: &str) -> Result<(), c_int> {
+    pub(super) fn write_comment(&self, text: &str) -> Result<(), c_int> {
         let c_text = CString::new(text).expect("comments have no NUL");
         let mut status = 0;
         // SAFETY: open handle, valid C string.
@@ -372,51 +268,6 @@ impl FitsHandle {
             FALLBACK_BLOCK_ROWS
         }
     }
-}
-
-impl Drop for FitsHandle {
-    fn drop(&mut self) {
-        let _ = self.close();
-    }
-}
-
-fn ok(status: c_int) -> Result<(), c_int> {
-    if status == 0 {
-        Ok(())
-    } else {
-        Err(status)
-    }
-}
-
-/// cfitsio's short text for a status code, with the code.
-fn status_text(status: c_int) -> String {
-    let mut buf = [0 as c_char; 32];
-    // SAFETY: ffgerr writes at most 30 characters and a terminator (FLEN_STATUS = 31).
-    unsafe { sys::ffgerr(status, buf.as_mut_ptr()) };
-    let text = unsafe { CStr::from_ptr(buf.as_ptr()) }
-        .to_string_lossy()
-        .into_owned();
-    if text.is_empty() {
-        format!("cfitsio status {status}")
-    } else {
-        format!("{text} (cfitsio status {status})")
-    }
-}
-
-fn path_text(path: &Path) -> Result<&str, String> {
-    path.to_str()
-        .ok_or_else(|| "the path is not valid UTF-8, which cfitsio needs".to_string())
-}
-
-fn c_path(path: &Path) -> Result<CString, String> {
-    let text = path_text(path)?;
-    if text.len() >= MAX_PATH_BYTES {
-        return Err(format!(
-            "the path is too long for cfitsio (at most {} bytes)",
-            MAX_PATH_BYTES - 1
-        ));
-    }
-    CString::new(text).map_err(|_| "the path contains a NUL byte".to_string())
 }
 
 // ---------------------------------------------------------------------------------------------

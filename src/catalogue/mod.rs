@@ -1,6 +1,7 @@
 //! Catalogue edges: reading FITS, CSV/TSV and Parquet tables into columns, and writing them
 //! back with units, UCDs and provenance. Nothing here does physics.
 
+mod cfitsio;
 pub mod field_io;
 pub mod fits;
 
