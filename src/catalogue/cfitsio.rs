@@ -117,6 +117,33 @@ impl FitsHandle {
         unsafe { sys::ffmahd(self.raw(), (index + 1) as c_int, &mut hdu_type, &mut status) };
         ok(status).map(|()| hdu_type)
     }
+
+    /// An integer card.
+    pub(super) fn write_key_i64(&self, key: &str, value: i64, comment: &str) -> Result<(), c_int> {
+        let c_key = CString::new(key).expect("keyword names have no NUL");
+        let c_comment = CString::new(comment).expect("comments have no NUL");
+        let mut status = 0;
+        // SAFETY: open handle, valid C strings.
+        unsafe {
+            sys::ffpkyj(
+                self.raw(),
+                c_key.as_ptr(),
+                value,
+                c_comment.as_ptr(),
+                &mut status,
+            )
+        };
+        ok(status)
+    }
+
+    /// A COMMENT card.
+    pub(super) fn write_comment(&self, text: &str) -> Result<(), c_int> {
+        let c_text = CString::new(text).expect("comments have no NUL");
+        let mut status = 0;
+        // SAFETY: open handle, valid C string.
+        unsafe { sys::ffpcom(self.raw(), c_text.as_ptr(), &mut status) };
+        ok(status)
+    }
 }
 
 impl Drop for FitsHandle {

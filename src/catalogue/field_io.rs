@@ -601,7 +601,8 @@ fn write_image_form(file: &FitsHandle, grid: &VelocityGrid) -> Result<(), String
     file.create_image(BYTE_IMG, &[])
         .map_err(st("the primary header"))?;
     file.write_str("FS_FORM", FORMAT_NAME, "file format")?;
-    file.write_i64("FS_VERS", FORMAT_VERSION, "file format version")?;
+    file.write_key_i64("FS_VERS", FORMAT_VERSION, "file format version")
+        .map_err(|s| format!("cannot write card FS_VERS: {}", status_text(s)))?;
     write_geometry_cards(file, grid)?;
     for text in [
         "Velocity field: images VX, VY, VZ (km/s), x fastest; cell (i,j,k)",
@@ -1082,22 +1083,6 @@ impl FitsHandle {
                 c_key.as_ptr(),
                 value,
                 -17,
-                c_comment.as_ptr(),
-                &mut status,
-            )
-        };
-        ok(status).map_err(|s| format!("cannot write card {key}: {}", status_text(s)))
-    }
-
-    fn write_i64(&self, key: &str, value: i64, comment: &str) -> Result<(), String> {
-        let (c_key, c_comment) = (c_string(key)?, c_string(comment)?);
-        let mut status = 0;
-        // SAFETY: open handle, valid C strings.
-        unsafe {
-            sys::ffpkyj(
-                self.raw(),
-                c_key.as_ptr(),
-                value,
                 c_comment.as_ptr(),
                 &mut status,
             )
