@@ -437,22 +437,32 @@ fn columns_found_by_ucd_and_unit() {
         ("CZ".to_string(), m("km/s", "src.redshift")),
         ("DM".to_string(), m("mag", "phot.mag.distMod")),
     ]);
-    let ip = dir.path().join("ucd.fits");
-    write(&ip, &Table { frame, meta });
-    let op = dir.path().join("out.parquet");
-    let stdout = run_ok(&[
-        "velocities",
-        ip.to_str().unwrap(),
-        "-o",
-        op.to_str().unwrap(),
-    ]);
-    assert!(
-        stdout.contains("ra            ← RAJ2000 (UCD pos.eq.ra;meta.main)"),
-        "{stdout}"
-    );
-    assert!(stdout.contains("as cz in km/s"), "{stdout}");
-    assert!(stdout.contains("← DM (UCD phot.mag.distMod)"), "{stdout}");
-    check_against_reference(&read(&op), &r);
+    let table = Table { frame, meta };
+    // FITS keeps them as TUCDn/TUNITn; Parquet as flowsift's key-value metadata, which is
+    // read back, so the same mapping is found in both.
+    for (input, output) in [("ucd.fits", "out.parquet"), ("ucd.parquet", "out.fits")] {
+        let ip = dir.path().join(input);
+        write(&ip, &table);
+        let op = dir.path().join(output);
+        let stdout = run_ok(&[
+            "velocities",
+            ip.to_str().unwrap(),
+            "-o",
+            op.to_str().unwrap(),
+        ]);
+        assert!(
+            stdout.contains("ra            ← RAJ2000 (UCD pos.eq.ra;meta.main)"),
+            "{input}: {stdout}"
+        );
+        assert!(stdout.contains("as cz in km/s"), "{input}: {stdout}");
+        assert!(
+            stdout.contains("← DM (UCD phot.mag.distMod)"),
+            "{input}: {stdout}"
+        );
+        check_against_reference(&read(&op), &r);
+    }
+    let back = read(&dir.path().join("ucd.parquet"));
+    assert_eq!(back.meta, table.meta);
 }
 
 /// Flags name other columns; D_C in h⁻¹ Mpc; η as the distance; angles in radians.

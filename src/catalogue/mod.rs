@@ -13,7 +13,7 @@ use thiserror::Error;
 
 /// Per-column metadata carried alongside the data: FITS TUNITn / TUCDn, Parquet and CSV
 /// sidecar equivalents.
-#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
+#[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct ColumnMeta {
     /// Unit string (FITS standard 4.0 §4.3 unit syntax, e.g. "km/s", "Mpc", "deg", "mag").
     pub unit: Option<String>,

@@ -1,24 +1,45 @@
 //! Parquet through polars; provenance and column units as file key-value metadata.
 
+use std::collections::BTreeMap;
 use std::fs::File;
 use std::path::Path;
 
 use polars::prelude::*;
 
-use super::{CatalogueError, Provenance, Table};
+use super::{CatalogueError, ColumnMeta, Provenance, Table};
 
-/// Key under which per-column units and UCDs are stored (JSON object name → {unit, ucd}).
-pub const COLUMNS_KEY: &str = "flowsift.columns";
+/// Key under which per-column units and UCDs are stored (JSON object name → {unit, ucd});
+/// distinct from every `flowsift.<provenance entry>` key (the column plan is `flowsift.columns`).
+pub const COLUMNS_KEY: &str = "flowsift.column_units";
 
+/// Read a Parquet file. Units and UCDs written by flowsift (under [`COLUMNS_KEY`]) are
+/// read back for the columns present, so a flowsift output fed back in keeps them; a file
+/// from elsewhere has none (Parquet itself has no unit field).
 pub fn read_parquet(path: &Path) -> Result<Table, CatalogueError> {
     let file = File::open(path).map_err(|e| CatalogueError::read(path, e.to_string()))?;
-    let frame = ParquetReader::new(file)
+    let mut reader = ParquetReader::new(file);
+    let stored = reader
+        .get_metadata()
+        .map_err(|e| CatalogueError::read(path, format!("cannot read as Parquet: {e}")))?
+        .key_value_metadata()
+        .iter()
+        .flatten()
+        .find(|kv| kv.key == COLUMNS_KEY)
+        .and_then(|kv| kv.value.clone());
+    let frame = reader
         .finish()
         .map_err(|e| CatalogueError::read(path, format!("cannot read as Parquet: {e}")))?;
-    Ok(Table {
-        frame,
-        meta: Default::default(),
-    })
+    let mut meta: BTreeMap<String, ColumnMeta> = match stored {
+        Some(text) => serde_json::from_str(&text).map_err(|e| {
+            CatalogueError::read(
+                path,
+                format!("key-value metadata '{COLUMNS_KEY}' is not a column map: {e}"),
+            )
+        })?,
+        None => BTreeMap::new(),
+    };
+    meta.retain(|name, _| frame.column(name).is_ok());
+    Ok(Table { frame, meta })
 }
 
 /// Provenance entries as key-value metadata (keys prefixed `flowsift.`), plus the column

@@ -169,7 +169,7 @@ pub fn apex_table() -> Vec<Apex> {
             369.82,
             264.021,
             48.253,
-            "Planck Collaboration I (2020), A&A 641, A1: towards l = 264.021° ± 0.011°, b = 48.253° ± 0.005°; speed 369.82 ± 0.11 km/s (speed and errors from memory of the paper, direction confirmed)",
+            "Planck Collaboration I (2020), A&A 641, A1 (arXiv:1807.06205), Table 2: amplitude 3362.08 ± 0.99 μK, speed 369.82 ± 0.11 km/s towards l = 264.021° ± 0.011°, b = 48.253° ± 0.005° (speed and amplitude checked against published transcriptions of the table, not the paper itself)",
         ),
         cmb(
             "planck2013",
@@ -362,6 +362,20 @@ mod tests {
         assert_eq!(
             (a.speed_km_s, a.glon_deg, a.glat_deg),
             (369.82, 264.021, 48.253)
+        );
+    }
+
+    /// The paper's speed and its dipole amplitude agree: c ΔT/T0 with ΔT = 3362.08 ± 0.99 μK
+    /// (Planck Collaboration I 2020, Table 2) and T0 = 2.7255 K (Fixsen 2009, ApJ 707, 916;
+    /// from memory) is 369.81 km/s, within the quoted ± 0.11 km/s of 369.82 (β is first
+    /// order in ΔT/T0).
+    #[test]
+    fn planck2018_speed_matches_its_dipole_amplitude() {
+        let from_amplitude = C_KM_S * 3362.08e-6 / 2.7255;
+        let a = default_apex("cmb");
+        assert!(
+            (a.speed_km_s - from_amplitude).abs() < 0.11 + C_KM_S * 0.99e-6 / 2.7255,
+            "{from_amplitude}"
         );
     }
 
