@@ -202,6 +202,8 @@ fn density_grid_gives_linear_theory_velocities() {
         out.to_str().unwrap(),
         "--density",
         density.to_str().unwrap(),
+        "--density-boundary",
+        "periodic",
         "--growth-rate",
         "0.5",
     ]);
@@ -212,5 +214,122 @@ fn density_grid_gives_linear_theory_velocities() {
     assert!(
         (v - expected).abs() < 0.03 * expected.abs().max(100.0),
         "v_model {v} vs linear theory {expected} at r = {r}"
+    );
+}
+
+/// `correct --density` with a FITS `DELTA` image and the default isolated boundary: a
+/// uniform sphere (δ0 inside radius R, zero elsewhere) centred at SGX = +60 Mpc pulls an
+/// object behind it, towards +SGX, with the linear-theory velocity
+/// v = −(H0 f/4π) M/|r − c|² (M = Σ δ h³ of the sphere's cells; Peebles 1980 §14, Gauss's
+/// theorem for ∇·v = −H0 f δ), here towards the sphere, i.e. towards us. The run says which
+/// boundary was assumed.
+#[test]
+fn density_image_with_isolated_boundary() {
+    use fitsio::images::{ImageDescription, ImageType};
+    let dir = tempfile::tempdir().unwrap();
+    let (n, h, delta0, radius, centre) = (41usize, 5.0, 0.5, 15.0, 60.0);
+    let origin = -0.5 * (n as f64 - 1.0) * h; // cell centres at −100 … 100 Mpc
+    let mut delta = vec![0.0; n * n * n];
+    let mut cells = 0usize;
+    for k in 0..n {
+        for j in 0..n {
+            for i in 0..n {
+                let p = [i, j, k].map(|m| origin + m as f64 * h);
+                let d2 = (p[0] - centre).powi(2) + p[1] * p[1] + p[2] * p[2];
+                if d2 < radius * radius {
+                    delta[i + n * (j + n * k)] = delta0;
+                    cells += 1;
+                }
+            }
+        }
+    }
+    let mass = delta0 * cells as f64 * h.powi(3);
+    let density = dir.path().join("delta.fits");
+    {
+        let mut f = fitsio::FitsFile::create(&density).open().unwrap();
+        let description = ImageDescription {
+            data_type: ImageType::Double,
+            dimensions: &[n, n, n],
+        };
+        let hdu = f.create_image("DELTA", &description).unwrap();
+        for (key, value) in [("FS_AXES", "SUPERGALACTIC"), ("FS_LUNIT", "Mpc")] {
+            hdu.write_key(&mut f, key, value).unwrap();
+        }
+        for (key, value) in [
+            ("FS_ORIG1", origin),
+            ("FS_ORIG2", origin),
+            ("FS_ORIG3", origin),
+            ("FS_SPACE", h),
+        ] {
+            hdu.write_key(&mut f, key, value).unwrap();
+        }
+        hdu.write_image(&mut f, &delta).unwrap();
+    }
+    let rot = flowsift::physics::sky::SkyRotations::default();
+    let sg = flowsift::physics::sky::Direction::<flowsift::physics::sky::Supergalactic>::from_lon_lat_deg(0.0, 0.0).unwrap();
+    let (ra, dec) = rot.icrs_to_supergalactic.inverse().apply(&sg).lon_lat_deg();
+    let input = dir.path().join("one.csv");
+    // Behind the sphere: cz ≈ 6600 km/s, D_C ≈ 93 Mpc.
+    std::fs::write(&input, format!("ra,dec,z_helio\n{ra},{dec},0.0222\n")).unwrap();
+    let out = dir.path().join("out.csv");
+    let stdout = run_ok(&[
+        "correct",
+        input.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+        "--density",
+        density.to_str().unwrap(),
+        "--growth-rate",
+        "0.5",
+    ]);
+    assert!(stdout.contains("δ = 0 outside the grid"), "{stdout}");
+    let t = read_table(&out, &ReadOptions::default()).unwrap();
+    let r = f64s(&t, "field_distance")[0];
+    let v = f64s(&t, "v_model")[0];
+    assert!(r > centre + radius + 2.0 * h && r < 100.0 - h, "r = {r}");
+    let expected = -70.0 * 0.5 * mass / (4.0 * std::f64::consts::PI * (r - centre).powi(2));
+    assert!(
+        (v - expected).abs() < 0.03 * expected.abs(),
+        "v_model {v} vs linear theory {expected} at r = {r}"
+    );
+
+    // A unit on the image is refused, naming the HDU and the card.
+    let bad = dir.path().join("bad.fits");
+    {
+        let mut f = fitsio::FitsFile::create(&bad).open().unwrap();
+        let description = ImageDescription {
+            data_type: ImageType::Double,
+            dimensions: &[2, 2, 2],
+        };
+        let hdu = f.create_image("DELTA", &description).unwrap();
+        for (key, value) in [
+            ("FS_AXES", "SUPERGALACTIC"),
+            ("FS_LUNIT", "Mpc"),
+            ("BUNIT", "km/s"),
+        ] {
+            hdu.write_key(&mut f, key, value).unwrap();
+        }
+        for key in ["FS_ORIG1", "FS_ORIG2", "FS_ORIG3", "FS_SPACE"] {
+            hdu.write_key(&mut f, key, 1.0).unwrap();
+        }
+        hdu.write_image(&mut f, &[0.0; 8]).unwrap();
+    }
+    let failed = Command::cargo_bin("flowsift")
+        .unwrap()
+        .args([
+            "correct",
+            input.to_str().unwrap(),
+            "-o",
+            dir.path().join("o2.csv").to_str().unwrap(),
+            "--density",
+            bad.to_str().unwrap(),
+        ])
+        .output()
+        .unwrap();
+    let err = String::from_utf8_lossy(&failed.stderr);
+    assert!(!failed.status.success());
+    assert!(
+        err.contains("bad.fits") && err.contains("HDU DELTA") && err.contains("BUNIT"),
+        "{err}"
     );
 }

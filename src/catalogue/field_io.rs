@@ -46,6 +46,15 @@
 //! The three images must have the same shape and geometry. `FS_VERS` above 1 is refused.
 //! Every error names the file, the HDU and the card or pixel.
 //!
+//! # Density-contrast FITS form
+//!
+//! [`read_density`] also reads a density contrast δ = ρ/ρ̄ − 1 as one 3-D image with
+//! `EXTNAME = 'DELTA'` (found wherever it is, as above; any `BITPIX`), pixel [i+1, j+1, k+1]
+//! being δ of cell (i, j, k), with the same geometry cards (`FS_ORIG1..3`, `FS_SPACE`,
+//! `FS_AXES`, `FS_LUNIT`, on the image or the primary header; hints as above). `BUNIT` may
+//! be absent or dimensionless (`''` or `'1'`); any other unit is refused. Every δ must be
+//! finite and above −1.
+//!
 //! # Table form
 //!
 //! Any table [`read_table`] reads (CSV, TSV, Parquet, or a FITS binary table — a FITS file
@@ -80,6 +89,8 @@ use crate::physics::field::{FieldAxes, VelocityGrid};
 
 /// `EXTNAME`s of the three velocity images, x, y, z.
 pub const EXTNAMES: [&str; 3] = ["VX", "VY", "VZ"];
+/// `EXTNAME` of a density-contrast image.
+pub const DENSITY_EXTNAME: &str = "DELTA";
 /// Value of the `FS_FORM` card.
 pub const FORMAT_NAME: &str = "FLOWSIFT VELOCITY GRID";
 /// Value of the `FS_VERS` card that this module writes; the highest it reads.
@@ -129,10 +140,52 @@ pub fn read_field(
     grid_from_table(&table, axes_hint, unit_hint).map_err(err)
 }
 
-/// A density-contrast grid δ from a table with columns `x`, `y`, `z`, `delta` on a regular
-/// grid (the same rules as the table form of a velocity field). Returned as a grid whose
-/// first component holds δ (the other two are zero), so the geometry travels with it.
-pub fn read_density_table(
+/// A density-contrast grid δ: the FITS image form if the file is FITS and holds a `DELTA`
+/// image (see the [module documentation](self)), otherwise a table with columns `x`, `y`,
+/// `z`, `delta` on a regular grid (the same rules as the table form of a velocity field).
+/// Returned as a grid whose first component holds δ (the other two are zero), so the
+/// geometry travels with it.
+pub fn read_density(
+    path: &Path,
+    axes_hint: Option<FieldAxes>,
+    unit_hint: Option<LengthUnit>,
+) -> Result<VelocityGrid, CatalogueError> {
+    if !path.exists() {
+        return Err(CatalogueError::read(path, "no such file"));
+    }
+    let err = |m: String| CatalogueError::read(path, m);
+    let grid = if Format::from_path(path)? == Format::Fits {
+        let file = FitsHandle::open(path).map_err(err)?;
+        if file.find_hdu(DENSITY_EXTNAME).map_err(err)?.is_some() {
+            Some(read_density_image(&file, axes_hint, unit_hint).map_err(err)?)
+        } else {
+            None
+        }
+    } else {
+        None
+    };
+    let grid = match grid {
+        Some(g) => g,
+        None => read_density_table(path, axes_hint, unit_hint)?,
+    };
+    if let Some(idx) = grid.v[0].iter().position(|d| !(d.is_finite() && *d > -1.0)) {
+        let [nx, ny, _] = grid.shape;
+        let cell = [idx % nx, (idx / nx) % ny, idx / (nx * ny)];
+        let at = |a: usize| grid.origin[a] + cell[a] as f64 * grid.spacing;
+        return Err(err(format!(
+            "the grid point at x = {}, y = {}, z = {} has δ = {}; a density contrast must be \
+             finite and above −1",
+            at(0),
+            at(1),
+            at(2),
+            grid.v[0][idx]
+        )));
+    }
+    Ok(grid)
+}
+
+/// The table form of [`read_density`].
+fn read_density_table(
     path: &Path,
     axes_hint: Option<FieldAxes>,
     unit_hint: Option<LengthUnit>,
@@ -408,12 +461,22 @@ struct Geometry {
     unit: LengthUnit,
 }
 
+/// What an image's pixels hold, for its `BUNIT`.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum Pixels {
+    /// A velocity component: `BUNIT` km/s, required.
+    Velocity,
+    /// A density contrast: `BUNIT` absent or dimensionless.
+    Contrast,
+}
+
 fn resolve_geometry(
     hdu: &str,
     cards: &Cards,
     shape: [usize; 3],
     axes_hint: Option<FieldAxes>,
     unit_hint: Option<LengthUnit>,
+    pixels: Pixels,
 ) -> Result<Geometry, String> {
     let missing = |key: &str, what: &str| {
         format!("HDU {hdu}: no {key} card ({what}) in this HDU or the primary header; {CARD_HELP}")
@@ -488,14 +551,20 @@ fn resolve_geometry(
             ))
         }
     };
-    match &cards.bunit {
-        None => return Err(missing("BUNIT", "'km/s'")),
-        Some(b) if !is_km_s(b) => {
+    match (pixels, &cards.bunit) {
+        (Pixels::Velocity, None) => return Err(missing("BUNIT", "'km/s'")),
+        (Pixels::Velocity, Some(b)) if !is_km_s(b) => {
             return Err(format!(
                 "HDU {hdu}: BUNIT = '{b}'; velocities must be in km/s"
             ))
         }
-        Some(_) => {}
+        (Pixels::Contrast, Some(b)) if !matches!(b.trim(), "" | "1") => {
+            return Err(format!(
+                "HDU {hdu}: BUNIT = '{b}'; a density contrast has no unit (leave BUNIT out, \
+                 or write '' or '1')"
+            ))
+        }
+        _ => {}
     }
     Ok(Geometry {
         origin,
@@ -529,7 +598,7 @@ fn read_image_form(
         }
         let shape = file.image_shape().map_err(|m| format!("HDU {name}: {m}"))?;
         let cards = Cards::read(file, name)?.or(&primary);
-        let g = resolve_geometry(name, &cards, shape, axes_hint, unit_hint)?;
+        let g = resolve_geometry(name, &cards, shape, axes_hint, unit_hint, Pixels::Velocity)?;
         let values = file
             .read_image(shape)
             .map_err(|m| format!("HDU {name}: {m}"))?;
@@ -558,6 +627,49 @@ fn read_image_form(
     }
     let (g, _) = geometry.expect("three components read");
     VelocityGrid::new(g.origin, g.spacing, g.shape, g.axes, g.unit, v).map_err(|e| e.to_string())
+}
+
+fn read_density_image(
+    file: &FitsHandle,
+    axes_hint: Option<FieldAxes>,
+    unit_hint: Option<LengthUnit>,
+) -> Result<VelocityGrid, String> {
+    file.move_to(0)
+        .map_err(|s| format!("cannot read the primary header: {}", status_text(s)))?;
+    let primary = Cards::read(file, "primary")?;
+    let name = DENSITY_EXTNAME;
+    let hdu_type = file
+        .find_hdu(name)?
+        .ok_or_else(|| format!("no {name} HDU"))?;
+    if hdu_type != IMAGE_HDU {
+        return Err(format!("HDU {name} is a table, not an image"));
+    }
+    let shape = file.image_shape().map_err(|m| format!("HDU {name}: {m}"))?;
+    let cards = Cards::read(file, name)?.or(&primary);
+    let g = resolve_geometry(name, &cards, shape, axes_hint, unit_hint, Pixels::Contrast)?;
+    let values = file
+        .read_image(shape)
+        .map_err(|m| format!("HDU {name}: {m}"))?;
+    if let Some(idx) = values.iter().position(|d| !(*d > -1.0 && d.is_finite())) {
+        let (nx, ny) = (shape[0], shape[1]);
+        return Err(format!(
+            "HDU {name}: pixel [{}, {}, {}] is {}; a density contrast must be finite and above −1",
+            idx % nx + 1,
+            (idx / nx) % ny + 1,
+            idx / (nx * ny) + 1,
+            values[idx]
+        ));
+    }
+    let n = values.len();
+    VelocityGrid::new(
+        g.origin,
+        g.spacing,
+        g.shape,
+        g.axes,
+        g.unit,
+        [values, vec![0.0; n], vec![0.0; n]],
+    )
+    .map_err(|e| e.to_string())
 }
 
 fn describe(g: &Geometry) -> String {

@@ -64,10 +64,19 @@ pub struct ModelFlags {
     /// Velocity grid: our FITS field file (VX, VY, VZ images) or a table x, y, z, vx, vy, vz.
     #[arg(long, value_name = "FIELD")]
     pub field: Option<PathBuf>,
-    /// Density-contrast grid (a table x, y, z, delta on a regular grid), turned into
-    /// linear-theory velocities by FFT (the box is taken as periodic).
+    /// Density-contrast grid (a FITS DELTA image with the field file's geometry cards, or a
+    /// table x, y, z, delta on a regular grid), turned into linear-theory velocities by FFT.
     #[arg(long, value_name = "FILE", conflicts_with = "field")]
     pub density: Option<PathBuf>,
+    /// Outside the density grid: isolated (δ = 0 beyond the grid, for a survey
+    /// reconstruction; default) or periodic (the grid is a periodic box, for a simulation).
+    #[arg(
+        long = "density-boundary",
+        value_enum,
+        value_name = "BOUNDARY",
+        requires = "density"
+    )]
+    pub density_boundary: Option<BoundaryArg>,
     /// Growth rate f for --density (default Ω_m^0.55 of the cosmology).
     #[arg(long = "growth-rate", value_name = "F", requires = "density")]
     pub growth_rate: Option<f64>,
@@ -128,19 +137,34 @@ impl ModelFlags {
                 Some(read_field(p, axes_hint, unit_hint)?)
             }
             (None, Some(p)) => {
-                let d = flowsift::catalogue::field_io::read_density_table(p, axes_hint, unit_hint)?;
+                use flowsift::physics::field::{
+                    velocity_from_density, velocity_from_density_isolated, DensityBoundary,
+                };
+                let d = flowsift::catalogue::field_io::read_density(p, axes_hint, unit_hint)?;
                 let f = self
                     .growth_rate
                     .unwrap_or_else(|| growth_rate(params.omega_m, params.omega_de, 0.0));
-                let v = flowsift::physics::field::velocity_from_density(
+                let boundary = match self.density_boundary {
+                    Some(BoundaryArg::Periodic) => DensityBoundary::Periodic,
+                    Some(BoundaryArg::Isolated) | None => DensityBoundary::Isolated,
+                };
+                let solve = match boundary {
+                    DensityBoundary::Isolated => velocity_from_density_isolated,
+                    DensityBoundary::Periodic => velocity_from_density,
+                };
+                let v = solve(
                     &d.v[0],
                     d.shape,
                     d.spacing,
                     f,
                     hubble_per_length(params, d.length_unit),
                 );
+                let outside = match boundary {
+                    DensityBoundary::Isolated => "δ = 0 outside the grid",
+                    DensityBoundary::Periodic => "the grid taken as a periodic box",
+                };
                 description.push(format!(
-                    "linear-theory velocities from the density grid {} (f = {f:.4}, periodic FFT)",
+                    "linear-theory velocities from the density grid {} (f = {f:.4}, {outside})",
                     p.display()
                 ));
                 Some(flowsift::physics::field::VelocityGrid { v, ..d })
@@ -217,6 +241,12 @@ impl ModelFlags {
         ));
         Ok(Some((model, description.join("; "))))
     }
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum BoundaryArg {
+    Isolated,
+    Periodic,
 }
 
 #[derive(Debug, Clone, Copy, ValueEnum)]
