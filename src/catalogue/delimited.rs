@@ -1,14 +1,32 @@
-//! CSV and TSV through polars.
+//! CSV and TSV through polars, with the input's own text kept for the output.
+//!
+//! A delimited output of a delimited input repeats every input column. When the input
+//! allows it, those columns are copied from the input's lines byte for byte (so a value
+//! written `0.0230` stays `0.0230`) and only the new columns are formatted; this also
+//! halves the formatting work of a CSV → CSV run. The conditions are checked, not assumed
+//! ([`SourceText::scan`], [`SourceText::matches`]); when one fails the whole table is
+//! written by polars instead, which gives the same values in polars' own number format.
 
 use std::fs::File;
+use std::io::Write;
 use std::path::Path;
 
 use polars::prelude::*;
+use rayon::prelude::*;
 
 use super::{CatalogueError, Table};
 
 /// Rows used to infer column types on the fast path.
 const INFER_ROWS: usize = 10_000;
+/// Entries read as nulls (beside an empty field).
+const NULL_WORDS: [&str; 3] = ["", "NA", "null"];
+/// Rows per block serialised in one piece (by polars, and by the copying writer).
+const BATCH_ROWS: usize = 16_384;
+/// Rows per block of the copying writer.
+const COPY_BATCH_ROWS: usize = 4_096;
+/// Blocks the copying writer formats in parallel at a time; at most half as many more wait
+/// to be written (memory: about 1.5 × this many blocks of COPY_BATCH_ROWS lines).
+const BATCHES_PER_WRITE: usize = 4;
 
 /// Read a delimited file with a header line. Lines starting with '#' are comments. Column
 /// types are inferred from the first rows; if a later entry does not fit (a stray word in a
@@ -34,6 +52,44 @@ pub fn read_delimited(path: &Path, separator: u8) -> Result<Table, CatalogueErro
     })
 }
 
+/// As [`read_delimited`], and also the file's text when it can be copied into an output
+/// ([`SourceText`]); `None` when it cannot (quoted fields, blank lines, ragged rows …).
+pub fn read_delimited_keeping_text(
+    path: &Path,
+    separator: u8,
+) -> Result<(Table, Option<SourceText>), CatalogueError> {
+    let file = File::open(path).map_err(|e| CatalogueError::read(path, e.to_string()))?;
+    // SAFETY: the map is read-only; as with polars' own mapping of its inputs, the file
+    // must not be changed by another process while flowsift runs.
+    let map = match unsafe { memmap2::Mmap::map(&file) } {
+        Ok(m) if !m.is_empty() => m,
+        _ => return Ok((read_delimited(path, separator)?, None)),
+    };
+    let read = |infer: Option<usize>| {
+        options(separator, infer)
+            .with_has_header(true)
+            .into_reader_with_file_handle(std::io::Cursor::new(&map[..]))
+            .finish()
+    };
+    let frame = match read(Some(INFER_ROWS)) {
+        Ok(f) => f,
+        Err(_) => read(None).map_err(|e| {
+            CatalogueError::read(path, format!("cannot read as delimited text: {e}"))
+        })?,
+    };
+    let text = SourceText::scan(map, separator).filter(|t| t.matches(&frame));
+    if let Some(t) = &text {
+        t.release(0, t.rows.len());
+    }
+    Ok((
+        Table {
+            frame,
+            meta: Default::default(),
+        },
+        text,
+    ))
+}
+
 /// The parse options shared by every way of reading.
 fn options(separator: u8, infer: Option<usize>) -> CsvReadOptions {
     CsvReadOptions::default()
@@ -42,23 +98,428 @@ fn options(separator: u8, infer: Option<usize>) -> CsvReadOptions {
             p.with_separator(separator)
                 .with_comment_prefix(Some("#"))
                 .with_missing_is_null(true)
-                .with_null_values(Some(NullValues::AllColumns(vec![
-                    "".into(),
-                    "NA".into(),
-                    "null".into(),
-                ])))
+                .with_null_values(Some(NullValues::AllColumns(
+                    NULL_WORDS.iter().map(|w| (*w).into()).collect(),
+                )))
         })
 }
 
-/// Write a delimited file with a header line; floats at full precision.
+/// Write a delimited file with a header line; floats at full precision (shortest text that
+/// reads back to the same number).
 pub fn write_delimited(file: &File, table: &Table, separator: u8) -> Result<(), String> {
     let mut df = table.frame.clone();
     // Large batches: each is serialised in parallel, then written; polars' default (1024
     // rows) spends much of its time starting and joining the parallel work.
     CsvWriter::new(file)
-        .with_batch_size(std::num::NonZeroUsize::new(16_384).expect("non-zero"))
+        .with_batch_size(std::num::NonZeroUsize::new(BATCH_ROWS).expect("non-zero"))
         .include_header(true)
         .with_separator(separator)
         .finish(&mut df)
         .map_err(|e| format!("cannot write delimited text: {e}"))
+}
+
+/// Write a delimited file whose leading columns are `text`'s: their cells are copied from
+/// the input lines and the other columns formatted as [`write_delimited`] would. Falls back
+/// to [`write_delimited`] when `text` is absent, has another separator, or does not match
+/// the table (other leading column names, another row count, a column type this writer
+/// does not format).
+pub fn write_delimited_with_text(
+    file: &File,
+    table: &Table,
+    separator: u8,
+    text: Option<&SourceText>,
+) -> Result<(), String> {
+    let text = text.filter(|t| {
+        t.separator == separator
+            && t.rows.len() == table.frame.height()
+            && table.frame.width() >= t.columns.len()
+            && table
+                .frame
+                .get_column_names()
+                .iter()
+                .zip(&t.columns)
+                .all(|(a, b)| a.as_str() == b)
+    });
+    let Some(text) = text else {
+        return write_delimited(file, table, separator);
+    };
+    let added: Option<Vec<Cells>> = table.frame.columns()[text.columns.len()..]
+        .iter()
+        .map(Cells::of)
+        .collect();
+    let Some(added) = added else {
+        return write_delimited(file, table, separator);
+    };
+    let names: Vec<&str> = table.frame.get_column_names()[text.columns.len()..]
+        .iter()
+        .map(|n| n.as_str())
+        .collect();
+    let mut header = text.line_of_header().to_vec();
+    for name in &names {
+        header.push(separator);
+        push_text(&mut header, name, separator);
+    }
+    header.push(b'\n');
+    // Blocks are formatted in parallel, a few at a time, while a writer thread hands the
+    // finished ones to the kernel in order; buffers go back to be filled again.
+    let n = text.rows.len();
+    let starts: Vec<usize> = (0..n).step_by(COPY_BATCH_ROWS).collect();
+    let (full_tx, full_rx) =
+        std::sync::mpsc::sync_channel::<(usize, Vec<u8>)>(BATCHES_PER_WRITE / 2);
+    let (empty_tx, empty_rx) = std::sync::mpsc::channel::<Vec<u8>>();
+    let written = std::thread::scope(|scope| {
+        let writer = scope.spawn(move || -> std::io::Result<()> {
+            let mut out = file;
+            out.write_all(&header)?;
+            for (start, block) in full_rx {
+                out.write_all(&block)?;
+                text.release(start, (start + COPY_BATCH_ROWS).min(n));
+                // The formatter may have finished already; a closed channel is no error.
+                empty_tx.send(block).ok();
+            }
+            Ok(())
+        });
+        'groups: for group in starts.chunks(BATCHES_PER_WRITE) {
+            let buffers: Vec<Vec<u8>> = group
+                .iter()
+                .map(|_| empty_rx.try_recv().unwrap_or_default())
+                .collect();
+            let blocks: Vec<(usize, Vec<u8>)> = group
+                .par_iter()
+                .zip(buffers)
+                .map(|(&start, mut buf)| {
+                    let end = (start + COPY_BATCH_ROWS).min(n);
+                    buf.clear();
+                    buf.reserve(
+                        text.bytes_of_rows(start, end) + (end - start) * (1 + 24 * added.len()),
+                    );
+                    for row in start..end {
+                        buf.extend_from_slice(text.line(row));
+                        for cells in &added {
+                            buf.push(separator);
+                            cells.push(row, &mut buf, separator);
+                        }
+                        buf.push(b'\n');
+                    }
+                    (start, buf)
+                })
+                .collect();
+            for block in blocks {
+                if full_tx.send(block).is_err() {
+                    // The writer stopped on an error, which join reports.
+                    break 'groups;
+                }
+            }
+        }
+        drop(full_tx);
+        writer.join().expect("the writer thread does not panic")
+    });
+    written.map_err(|e| format!("cannot write delimited text: {e}"))
+}
+
+/// Text written the way polars writes a string cell when quoting only where necessary: an
+/// empty string as `""` (an empty cell is a null), quoted when it holds the separator, a
+/// quote or a line break, with inner quotes doubled.
+fn push_text(buf: &mut Vec<u8>, s: &str, separator: u8) {
+    let b = s.as_bytes();
+    if b.is_empty() {
+        buf.extend_from_slice(b"\"\"");
+    } else if b
+        .iter()
+        .any(|&c| c == separator || c == b'"' || c == b'\n' || c == b'\r')
+    {
+        buf.push(b'"');
+        for &c in b {
+            if c == b'"' {
+                buf.push(b'"');
+            }
+            buf.push(c);
+        }
+        buf.push(b'"');
+    } else {
+        buf.extend_from_slice(b);
+    }
+}
+
+/// An added column, ready to be formatted cell by cell (nulls as empty cells).
+enum Cells {
+    F64(Float64Chunked),
+    F32(Float32Chunked),
+    I64(Int64Chunked),
+    U64(UInt64Chunked),
+    Bool(BooleanChunked),
+    Str(StringChunked),
+}
+
+impl Cells {
+    /// The column in one chunk, or `None` for a type left to polars' writer.
+    fn of(column: &Column) -> Option<Cells> {
+        let s = column.as_materialized_series();
+        let cells = match s.dtype() {
+            DataType::Float64 => Cells::F64(s.f64().ok()?.rechunk().into_owned()),
+            DataType::Float32 => Cells::F32(s.f32().ok()?.rechunk().into_owned()),
+            DataType::Int8 | DataType::Int16 | DataType::Int32 | DataType::Int64 => Cells::I64(
+                s.cast(&DataType::Int64)
+                    .ok()?
+                    .i64()
+                    .ok()?
+                    .rechunk()
+                    .into_owned(),
+            ),
+            DataType::UInt8 | DataType::UInt16 | DataType::UInt32 | DataType::UInt64 => Cells::U64(
+                s.cast(&DataType::UInt64)
+                    .ok()?
+                    .u64()
+                    .ok()?
+                    .rechunk()
+                    .into_owned(),
+            ),
+            DataType::Boolean => Cells::Bool(s.bool().ok()?.rechunk().into_owned()),
+            DataType::String => Cells::Str(s.str().ok()?.rechunk().into_owned()),
+            _ => return None,
+        };
+        Some(cells)
+    }
+
+    fn push(&self, row: usize, buf: &mut Vec<u8>, separator: u8) {
+        match self {
+            Cells::F64(ca) => {
+                if let Some(v) = ca.get(row) {
+                    buf.extend_from_slice(zmij::Buffer::new().format(v).as_bytes());
+                }
+            }
+            Cells::F32(ca) => {
+                if let Some(v) = ca.get(row) {
+                    buf.extend_from_slice(zmij::Buffer::new().format(v).as_bytes());
+                }
+            }
+            Cells::I64(ca) => {
+                if let Some(v) = ca.get(row) {
+                    buf.extend_from_slice(itoa::Buffer::new().format(v).as_bytes());
+                }
+            }
+            Cells::U64(ca) => {
+                if let Some(v) = ca.get(row) {
+                    buf.extend_from_slice(itoa::Buffer::new().format(v).as_bytes());
+                }
+            }
+            Cells::Bool(ca) => match ca.get(row) {
+                Some(true) => buf.extend_from_slice(b"true"),
+                Some(false) => buf.extend_from_slice(b"false"),
+                None => {}
+            },
+            Cells::Str(ca) => {
+                if let Some(v) = ca.get(row) {
+                    push_text(buf, v, separator);
+                }
+            }
+        }
+    }
+}
+
+/// A delimited file's text, line by line: the header and one line per data row, without
+/// line endings (`\n`, or `\r\n`). Only files that polars reads one row per line, with
+/// every field unquoted, qualify; [`SourceText::scan`] checks that.
+pub struct SourceText {
+    map: memmap2::Mmap,
+    separator: u8,
+    header: (usize, usize),
+    /// First byte of each data line (a line runs to its `\n`, or the end of the file).
+    rows: Vec<usize>,
+    /// The header's field names.
+    columns: Vec<String>,
+}
+
+impl SourceText {
+    /// Index the lines of `map`. `None` (so that polars writes the whole output) for: a
+    /// byte-order mark; any quote character (a quoted field may hold separators or line
+    /// breaks); a blank line before the end; a line with another number of fields than the
+    /// header. Comment lines (starting with '#') are skipped, as polars skips them.
+    pub fn scan(map: memmap2::Mmap, separator: u8) -> Option<SourceText> {
+        let bytes: &[u8] = &map;
+        if bytes.starts_with(&[0xEF, 0xBB, 0xBF]) || memchr::memchr(b'"', bytes).is_some() {
+            return None;
+        }
+        // Lines are found in pieces in parallel; each piece starts just after a line break.
+        let pieces = 64usize;
+        let mut cuts = vec![0usize];
+        for p in 1..pieces {
+            let at = (bytes.len() * p / pieces).max(*cuts.last().expect("non-empty"));
+            let cut = memchr::memchr(b'\n', &bytes[at..]).map_or(bytes.len(), |i| at + i + 1);
+            cuts.push(cut);
+        }
+        cuts.push(bytes.len());
+        cuts.dedup();
+        // Per piece: the first byte of each line, and of each blank line.
+        let found: Vec<(Vec<usize>, Vec<usize>)> = cuts
+            .par_windows(2)
+            .map(|w| {
+                let (from, to) = (w[0], w[1]);
+                let mut lines = Vec::new();
+                let mut blanks = Vec::new();
+                let mut start = from;
+                let mut piece = |a: usize, b: usize| {
+                    let mut end = b;
+                    if end > a && bytes[end - 1] == b'\r' {
+                        end -= 1;
+                    }
+                    if end == a {
+                        blanks.push(a);
+                    } else if bytes[a] != b'#' {
+                        lines.push(a);
+                    }
+                };
+                for nl in memchr::memchr_iter(b'\n', &bytes[from..to]) {
+                    piece(start, from + nl);
+                    start = from + nl + 1;
+                }
+                if start < to {
+                    piece(start, to);
+                }
+                (lines, blanks)
+            })
+            .collect();
+        let last_line_start = found
+            .iter()
+            .rev()
+            .find_map(|(l, _)| l.last().copied())
+            .unwrap_or(0);
+        // Blank lines are allowed only after the last line.
+        if found
+            .iter()
+            .any(|(_, blanks)| blanks.iter().any(|&b| b < last_line_start))
+        {
+            return None;
+        }
+        let header_start = *found.iter().find_map(|(l, _)| l.first())?;
+        let mut lines: Vec<usize> = Vec::with_capacity(
+            found
+                .iter()
+                .map(|f| f.0.len())
+                .sum::<usize>()
+                .saturating_sub(1),
+        );
+        for (l, _) in found {
+            lines.extend(l.into_iter().filter(|&a| a != header_start));
+        }
+        let header_line = line_at(bytes, header_start);
+        let header = (header_start, header_line.len());
+        let columns: Vec<String> = bytes[header.0..header.0 + header.1]
+            .split(|&b| b == separator)
+            .map(|f| String::from_utf8_lossy(f).into_owned())
+            .collect();
+        Some(SourceText {
+            map,
+            separator,
+            header,
+            rows: lines,
+            columns,
+        })
+    }
+
+    /// Whether polars read `frame` from this text one row per line: the same column names
+    /// in the same order, one row per data line, every line with as many fields as the
+    /// header, and a numeric column whose every cell reads back from its line to the same
+    /// number (or null). A table with no such column is not matched.
+    pub fn matches(&self, frame: &DataFrame) -> bool {
+        if frame.height() != self.rows.len()
+            || frame.width() != self.columns.len()
+            || frame
+                .get_column_names()
+                .iter()
+                .zip(&self.columns)
+                .any(|(a, b)| a.as_str() != b)
+        {
+            return false;
+        }
+        let Some((index, values)) = frame
+            .columns()
+            .iter()
+            .enumerate()
+            .find_map(|(i, c)| Some((i, c.as_materialized_series().f64().ok()?)))
+        else {
+            return false;
+        };
+        let separators = self.columns.len() - 1;
+        let sep = self.separator;
+        (0..self.rows.len()).into_par_iter().all(|row| {
+            let line = self.line(row);
+            let mut bounds = memchr::memchr_iter(sep, line);
+            let start = if index == 0 {
+                0
+            } else {
+                match bounds.nth(index - 1) {
+                    Some(p) => p + 1,
+                    None => return false,
+                }
+            };
+            let (end, before) = match bounds.next() {
+                Some(p) => (p, index + 1),
+                None => (line.len(), index),
+            };
+            if before + bounds.count() != separators {
+                return false;
+            }
+            let Ok(field) = std::str::from_utf8(&line[start..end]) else {
+                return false;
+            };
+            match values.get(row) {
+                None => NULL_WORDS.contains(&field),
+                Some(v) => field
+                    .parse::<f64>()
+                    .is_ok_and(|x| x.to_bits() == v.to_bits() || (x.is_nan() && v.is_nan())),
+            }
+        })
+    }
+
+    fn line_of_header(&self) -> &[u8] {
+        &self.map[self.header.0..self.header.0 + self.header.1]
+    }
+
+    fn line(&self, row: usize) -> &[u8] {
+        line_at(&self.map, self.rows[row])
+    }
+
+    /// Bytes of rows `first..end`, line endings included (an upper bound for a buffer).
+    fn bytes_of_rows(&self, first: usize, end: usize) -> usize {
+        if first >= end {
+            return 0;
+        }
+        let to = self.rows.get(end).copied().unwrap_or(self.map.len());
+        to - self.rows[first]
+    }
+
+    /// Let the kernel drop this process's pages of rows `first..end` (they are read again
+    /// from the page cache if touched), so that the input's text does not stay in memory
+    /// beside the table while the run goes on.
+    fn release(&self, first: usize, end: usize) {
+        if first >= end {
+            return;
+        }
+        let page = 4096usize;
+        let from = self.rows[first] / page * page;
+        let to = match self.rows.get(end) {
+            Some(&next) => next / page * page,
+            None => self.map.len(),
+        };
+        if to > from {
+            // SAFETY: DontNeed on a read-only file mapping only drops page-table entries;
+            // the next access faults the same file contents back in.
+            unsafe {
+                self.map
+                    .unchecked_advise_range(memmap2::UncheckedAdvice::DontNeed, from, to - from)
+                    .ok();
+            }
+        }
+    }
+}
+
+/// The line of `bytes` that starts at `from`, without its `\n` or `\r\n`.
+fn line_at(bytes: &[u8], from: usize) -> &[u8] {
+    let rest = &bytes[from..];
+    let line = memchr::memchr(b'\n', rest).map_or(rest, |i| &rest[..i]);
+    match line {
+        [head @ .., b'\r'] => head,
+        _ => line,
+    }
 }

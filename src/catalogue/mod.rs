@@ -121,6 +121,22 @@ pub fn read_table(path: &Path, options: &ReadOptions) -> Result<Table, Catalogue
     }
 }
 
+/// As [`read_table`], and for a CSV/TSV file also its text when an output can copy the
+/// input columns from it ([`delimited::SourceText`]; give it to [`write_table_with_text`]).
+pub fn read_table_keeping_text(
+    path: &Path,
+    options: &ReadOptions,
+) -> Result<(Table, Option<delimited::SourceText>), CatalogueError> {
+    if !path.exists() {
+        return Err(CatalogueError::read(path, "no such file"));
+    }
+    match Format::from_path(path)? {
+        Format::Csv => delimited::read_delimited_keeping_text(path, b','),
+        Format::Tsv => delimited::read_delimited_keeping_text(path, b'\t'),
+        _ => Ok((read_table(path, options)?, None)),
+    }
+}
+
 /// How to write.
 #[derive(Debug, Clone, Default)]
 pub struct WriteOptions {
@@ -147,6 +163,19 @@ pub fn write_table(
     table: &Table,
     provenance: &Provenance,
     options: &WriteOptions,
+) -> Result<(), CatalogueError> {
+    write_table_with_text(path, table, provenance, options, None)
+}
+
+/// As [`write_table`]; a CSV/TSV output whose leading columns are those of `text` (the
+/// input read by [`read_table_keeping_text`]) copies their cells from the input's lines
+/// (see [`delimited::write_delimited_with_text`]). Other formats ignore `text`.
+pub fn write_table_with_text(
+    path: &Path,
+    table: &Table,
+    provenance: &Provenance,
+    options: &WriteOptions,
+    text: Option<&delimited::SourceText>,
 ) -> Result<(), CatalogueError> {
     let format = Format::from_path(path).map_err(|_| {
         CatalogueError::write(
@@ -202,9 +231,9 @@ pub fn write_table(
         return Ok(());
     }
     match format {
-        Format::Csv => delimited::write_delimited(tmp.as_file(), table, b',')
+        Format::Csv => delimited::write_delimited_with_text(tmp.as_file(), table, b',', text)
             .map_err(|e| CatalogueError::write(path, e))?,
-        Format::Tsv => delimited::write_delimited(tmp.as_file(), table, b'\t')
+        Format::Tsv => delimited::write_delimited_with_text(tmp.as_file(), table, b'\t', text)
             .map_err(|e| CatalogueError::write(path, e))?,
         Format::Parquet => parquet::write_parquet(tmp.as_file(), table, provenance)
             .map_err(|e| CatalogueError::write(path, e))?,

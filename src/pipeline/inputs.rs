@@ -148,18 +148,36 @@ fn worst(status: &mut u8, s: RowStatus) {
 pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'a>, String> {
     let n = table.frame.height();
     let mut status = vec![RowStatus::Ok as u8; n];
-    let (ra, ra_c) = read_numbers(table, &plan.ra.column, Reading::Ra(plan.angle_unit))?;
-    let (dec, dec_c) = read_numbers(table, &plan.dec.column, Reading::Dec(plan.angle_unit))?;
-    let (mut z, z_c) = read_numbers(table, &plan.z.column, Reading::Number)?;
-    let (dist, dist_c) = read_numbers(table, &plan.distance.column, Reading::Number)?;
-    let (mut z_err, z_err_c) = match &plan.z_err {
-        Some(r) => read_numbers(table, &r.column, Reading::Number)?,
-        None => (Cow::Owned(vec![0.0; n]), vec![0; n]),
+    // The columns are read in parallel; errors are reported in this fixed order.
+    let optional = |r: &Option<crate::plan::columns::Resolved>| match r {
+        Some(r) => read_numbers(table, &r.column, Reading::Number),
+        None => Ok((Cow::Owned(vec![0.0; n]), vec![0; n])),
     };
-    let (mut dist_err, dist_err_c) = match &plan.distance_err {
-        Some(r) => read_numbers(table, &r.column, Reading::Number)?,
-        None => (Cow::Owned(vec![0.0; n]), vec![0; n]),
-    };
+    let ((ra, dec), ((z, dist), (z_err, dist_err))) = rayon::join(
+        || {
+            rayon::join(
+                || read_numbers(table, &plan.ra.column, Reading::Ra(plan.angle_unit)),
+                || read_numbers(table, &plan.dec.column, Reading::Dec(plan.angle_unit)),
+            )
+        },
+        || {
+            rayon::join(
+                || {
+                    rayon::join(
+                        || read_numbers(table, &plan.z.column, Reading::Number),
+                        || read_numbers(table, &plan.distance.column, Reading::Number),
+                    )
+                },
+                || rayon::join(|| optional(&plan.z_err), || optional(&plan.distance_err)),
+            )
+        },
+    );
+    let (ra, ra_c) = ra?;
+    let (dec, dec_c) = dec?;
+    let (mut z, z_c) = z?;
+    let (dist, dist_c) = dist?;
+    let (mut z_err, z_err_c) = z_err?;
+    let (mut dist_err, dist_err_c) = dist_err?;
 
     // A redshift column that holds cz (or the reverse) is a whole-column mistake.
     let mut finite: Vec<f64> = z

@@ -148,7 +148,22 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
         ));
     }
 
-    let (table, replaced) = stages::strip_earlier_run(read_input(&req.input, cfg)?);
+    // A delimited output can copy the input's columns from its text.
+    let (table, source_text) = if matches!(
+        out_format,
+        crate::catalogue::Format::Csv | crate::catalogue::Format::Tsv
+    ) {
+        crate::catalogue::read_table_keeping_text(
+            &req.input,
+            &crate::catalogue::ReadOptions {
+                hdu: cfg.input.hdu.clone(),
+            },
+        )
+        .map_err(|e| e.to_string())?
+    } else {
+        (read_input(&req.input, cfg)?, None)
+    };
+    let (table, replaced) = stages::strip_earlier_run(table);
     let plan = resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit)
         .map_err(|e| format!("{}: {e}", req.input.display()))?;
     let mut input =
@@ -396,7 +411,15 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
         force: req.force,
         protected: vec![req.input.clone()],
     };
-    write_table(&req.output, &out_table, &provenance, &options).map_err(|e| e.to_string())?;
+    crate::catalogue::write_table_with_text(
+        &req.output,
+        &out_table,
+        &provenance,
+        &options,
+        source_text.as_ref(),
+    )
+    .map_err(|e| e.to_string())?;
+    drop(source_text);
     let mut groups_summary = None;
     if let Some((gt, path)) = &group_out {
         write_table(path, gt, &provenance, &options).map_err(|e| e.to_string())?;
