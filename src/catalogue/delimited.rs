@@ -24,8 +24,8 @@ const NULL_WORDS: [&str; 3] = ["", "NA", "null"];
 const BATCH_ROWS: usize = 16_384;
 /// Rows per block of the copying writer.
 const COPY_BATCH_ROWS: usize = 4_096;
-/// Blocks the copying writer formats in parallel at a time; at most half as many more wait
-/// to be written (memory: about 1.5 × this many blocks of COPY_BATCH_ROWS lines).
+/// Blocks the copying writer formats in parallel at a time; at most as many more wait to be
+/// written (memory: about twice this many blocks of COPY_BATCH_ROWS lines).
 const BATCHES_PER_WRITE: usize = 4;
 
 /// Read a delimited file with a header line. Lines starting with '#' are comments. Column
@@ -164,8 +164,7 @@ pub fn write_delimited_with_text(
     // finished ones to the kernel in order; buffers go back to be filled again.
     let n = text.rows.len();
     let starts: Vec<usize> = (0..n).step_by(COPY_BATCH_ROWS).collect();
-    let (full_tx, full_rx) =
-        std::sync::mpsc::sync_channel::<(usize, Vec<u8>)>(BATCHES_PER_WRITE / 2);
+    let (full_tx, full_rx) = std::sync::mpsc::sync_channel::<(usize, Vec<u8>)>(BATCHES_PER_WRITE);
     let (empty_tx, empty_rx) = std::sync::mpsc::channel::<Vec<u8>>();
     let written = std::thread::scope(|scope| {
         let writer = scope.spawn(move || -> std::io::Result<()> {
@@ -193,11 +192,14 @@ pub fn write_delimited_with_text(
                     buf.reserve(
                         text.bytes_of_rows(start, end) + (end - start) * (1 + 24 * added.len()),
                     );
-                    for row in start..end {
+                    let len = end - start;
+                    let sliced: Vec<Cells> = added.iter().map(|c| c.slice(start, len)).collect();
+                    let views: Vec<View> = sliced.iter().map(View::of).collect();
+                    for (i, row) in (start..end).enumerate() {
                         buf.extend_from_slice(text.line(row));
-                        for cells in &added {
+                        for view in &views {
                             buf.push(separator);
-                            cells.push(row, &mut buf, separator);
+                            view.push(i, &mut buf, separator);
                         }
                         buf.push(b'\n');
                     }
@@ -281,35 +283,81 @@ impl Cells {
         Some(cells)
     }
 
-    fn push(&self, row: usize, buf: &mut Vec<u8>, separator: u8) {
+    /// Rows `start..start + len`, sharing the column's buffers.
+    fn slice(&self, start: usize, len: usize) -> Cells {
+        let at = start as i64;
         match self {
-            Cells::F64(ca) => {
-                if let Some(v) = ca.get(row) {
+            Cells::F64(ca) => Cells::F64(ca.slice(at, len)),
+            Cells::F32(ca) => Cells::F32(ca.slice(at, len)),
+            Cells::I64(ca) => Cells::I64(ca.slice(at, len)),
+            Cells::U64(ca) => Cells::U64(ca.slice(at, len)),
+            Cells::Bool(ca) => Cells::Bool(ca.slice(at, len)),
+            Cells::Str(ca) => Cells::Str(ca.slice(at, len)),
+        }
+    }
+}
+
+/// A block of an added column, read out for formatting row by row.
+enum View<'a> {
+    /// No nulls: the values themselves.
+    Dense(&'a [f64]),
+    F64(Vec<Option<f64>>),
+    F32(Vec<Option<f32>>),
+    I64(Vec<Option<i64>>),
+    U64(Vec<Option<u64>>),
+    Bool(Vec<Option<bool>>),
+    Str(Vec<Option<&'a str>>),
+}
+
+impl<'a> View<'a> {
+    fn of(cells: &'a Cells) -> View<'a> {
+        match cells {
+            Cells::F64(ca) => match ca.cont_slice() {
+                Ok(values) => View::Dense(values),
+                Err(_) => View::F64(ca.iter().collect()),
+            },
+            Cells::F32(ca) => View::F32(ca.iter().collect()),
+            Cells::I64(ca) => View::I64(ca.iter().collect()),
+            Cells::U64(ca) => View::U64(ca.iter().collect()),
+            Cells::Bool(ca) => View::Bool(ca.iter().collect()),
+            Cells::Str(ca) => View::Str(ca.iter().collect()),
+        }
+    }
+
+    /// Cell `i` of the block as [`write_delimited`] writes it (a null as an empty cell).
+    fn push(&self, i: usize, buf: &mut Vec<u8>, separator: u8) {
+        let float = |buf: &mut Vec<u8>, v: f64| {
+            buf.extend_from_slice(zmij::Buffer::new().format(v).as_bytes())
+        };
+        match self {
+            View::Dense(values) => float(buf, values[i]),
+            View::F64(values) => {
+                if let Some(v) = values[i] {
+                    float(buf, v)
+                }
+            }
+            View::F32(values) => {
+                if let Some(v) = values[i] {
                     buf.extend_from_slice(zmij::Buffer::new().format(v).as_bytes());
                 }
             }
-            Cells::F32(ca) => {
-                if let Some(v) = ca.get(row) {
-                    buf.extend_from_slice(zmij::Buffer::new().format(v).as_bytes());
-                }
-            }
-            Cells::I64(ca) => {
-                if let Some(v) = ca.get(row) {
+            View::I64(values) => {
+                if let Some(v) = values[i] {
                     buf.extend_from_slice(itoa::Buffer::new().format(v).as_bytes());
                 }
             }
-            Cells::U64(ca) => {
-                if let Some(v) = ca.get(row) {
+            View::U64(values) => {
+                if let Some(v) = values[i] {
                     buf.extend_from_slice(itoa::Buffer::new().format(v).as_bytes());
                 }
             }
-            Cells::Bool(ca) => match ca.get(row) {
+            View::Bool(values) => match values[i] {
                 Some(true) => buf.extend_from_slice(b"true"),
                 Some(false) => buf.extend_from_slice(b"false"),
                 None => {}
             },
-            Cells::Str(ca) => {
-                if let Some(v) = ca.get(row) {
+            View::Str(values) => {
+                if let Some(v) = values[i] {
                     push_text(buf, v, separator);
                 }
             }
