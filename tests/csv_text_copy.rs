@@ -219,3 +219,85 @@ fn files_the_copy_cannot_follow_are_written_whole() {
         same_derived(&t, &reference_table);
     }
 }
+
+/// Every column the sample stages add (group index as integers, outlier flags as
+/// true/false, reasons as text that holds the separator) reads back the same from the
+/// copying writer as from polars' writer. The input is an invented mock catalogue; the
+/// second copy carries a quote in a comment, which sends it through polars.
+#[test]
+fn stage_columns_match_polars_output() {
+    let dir = tempfile::tempdir().unwrap();
+    let mock = dir.path().join("mock.csv");
+    let out = Command::cargo_bin("flowsift")
+        .unwrap()
+        .args([
+            "mock",
+            "-o",
+            mock.to_str().unwrap(),
+            "--scenario",
+            "lantern",
+            "--n",
+            "600",
+            "--seed",
+            "4",
+            "--outlier-fraction",
+            "0.05",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let quoted = dir.path().join("mock_quoted.csv");
+    let text = std::fs::read_to_string(&mock).unwrap();
+    std::fs::write(&quoted, format!("# \"via polars\"\n{text}")).unwrap();
+    let mut tables = vec![];
+    for (input, output) in [(&mock, "copied.csv"), (&quoted, "whole.csv")] {
+        let output = dir.path().join(output);
+        let out = Command::cargo_bin("flowsift")
+            .unwrap()
+            .args([
+                "velocities",
+                input.to_str().unwrap(),
+                "-o",
+                output.to_str().unwrap(),
+                "--outliers",
+            ])
+            .output()
+            .unwrap();
+        assert!(
+            out.status.success(),
+            "{}",
+            String::from_utf8_lossy(&out.stderr)
+        );
+        tables.push(read_table(&output, &ReadOptions::default()).unwrap());
+    }
+    // The first output is the copy: its lines begin with the input's.
+    let copied = std::fs::read_to_string(dir.path().join("copied.csv")).unwrap();
+    for (o, i) in copied.lines().zip(text.lines()).skip(1) {
+        assert!(o.starts_with(&format!("{i},")), "{o}");
+    }
+    let (a, b) = (&tables[0], &tables[1]);
+    assert_eq!(a.frame.get_column_names(), b.frame.get_column_names());
+    assert_eq!(a.frame.height(), 600);
+    let reasons = a
+        .frame
+        .column("outlier_reason")
+        .unwrap()
+        .str()
+        .unwrap()
+        .clone();
+    assert!(
+        reasons.iter().flatten().any(|r| r.contains(',')),
+        "some object is flagged for two reasons"
+    );
+    for name in a.frame.get_column_names() {
+        let (x, y) = (
+            a.frame.column(name).unwrap().as_materialized_series(),
+            b.frame.column(name).unwrap().as_materialized_series(),
+        );
+        assert!(x.equals_missing(y), "column {name} differs");
+    }
+}
