@@ -7,7 +7,9 @@ use super::bulk::{BulkFlowChoice, LcdmComparison};
 
 /// The ΛCDM expectation for a fitted flow: the covariance of the ML estimator under linear
 /// theory, R_ij = (H0 f)²/(2π²) ∫ dk P(k) W²_ij(k), with the window W² built from the fit's
-/// own weights on velocities (Watkins, Feldman & Hudson 2009, MNRAS 392, 743), P(k) from the
+/// own weights on velocities (Watkins, Feldman & Hudson 2009, MNRAS 392, 743) and summed
+/// pair by pair with the k integral taken per separation
+/// ([`lcdm_bulk_flow_covariance_by_separation`](crate::physics::power::lcdm_bulk_flow_covariance_by_separation)), P(k) from the
 /// Eisenstein & Hu (1998) transfer function normalised to σ8, and f = Ω_m^0.55 at z = 0
 /// (Linder 2005). `positions` are in Mpc; `kappa` turns η weights into velocity weights.
 pub fn lcdm_comparison(
@@ -17,7 +19,9 @@ pub fn lcdm_comparison(
     cosmology: &Cosmology,
     choice: &BulkFlowChoice,
 ) -> Result<LcdmComparison, String> {
-    use crate::physics::power::{growth_rate, lcdm_bulk_flow_covariance, LinearPower, PowerParams};
+    use crate::physics::power::{
+        growth_rate, lcdm_bulk_flow_covariance_by_separation, LinearPower, PowerParams,
+    };
     let p = cosmology.params();
     let h = p.little_h();
     let base = PowerParams::planck2018();
@@ -47,7 +51,7 @@ pub fn lcdm_comparison(
         .zip(kappa)
         .map(|(w, k)| [w[0] * k, w[1] * k, w[2] * k])
         .collect();
-    let r = lcdm_bulk_flow_covariance(&power, f, &positions_h, &weights);
+    let r = lcdm_bulk_flow_covariance_by_separation(&power, f, &positions_h, &weights);
     let total = nalgebra::Matrix3::from_fn(|i, j| r[i][j] + fit.cov[i][j]);
     let inv = total
         .try_inverse()
@@ -64,7 +68,10 @@ pub fn lcdm_comparison(
         probability,
         growth_rate: f,
         sigma8: params.sigma8,
-        window: format!("exact pair sum over the {} objects of the fit, positions D_C(z_cmb) r̂", positions_mpc.len()),
+        window: format!(
+            "exact pair sum over the {} objects of the fit, positions D_C(z_cmb) r̂; k integrals per separation (tabulated in √A)",
+            positions_mpc.len()
+        ),
         power_spectrum: format!(
             "Eisenstein & Hu (1998) with baryon wiggles, h = {}, Ω_m = {}, Ω_b = {}, n_s = {}, σ8 = {}; f = Ω_m^0.55 = {:.4}",
             params.h, params.omega_m, params.omega_b, params.n_s, params.sigma8, f
