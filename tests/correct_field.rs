@@ -333,3 +333,64 @@ fn density_image_with_isolated_boundary() {
         "{err}"
     );
 }
+
+/// The vector flags take `X,Y,Z` in one argument, negative components included, as the
+/// README writes them; anything else is refused with the expected form.
+#[test]
+fn vector_flags_take_comma_separated_triples() {
+    let dir = tempfile::tempdir().unwrap();
+    let mock = dir.path().join("mock.csv");
+    run_ok(&[
+        "mock",
+        "-o",
+        mock.to_str().unwrap(),
+        "--n",
+        "40",
+        "--seed",
+        "3",
+        "--bulk-flow",
+        "-100,50,20",
+    ]);
+    let field = dir.path().join("field.fits");
+    run_ok(&[
+        "field",
+        "-o",
+        field.to_str().unwrap(),
+        "--bulk",
+        "150,-200,80",
+        "--cells",
+        "8",
+        "--spacing",
+        "40",
+    ]);
+    let out = dir.path().join("out.csv");
+    run_ok(&[
+        "correct",
+        mock.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+        "--bulk",
+        "-150,200,-80",
+        "--external",
+        "-10,20,30",
+    ]);
+    let t = read_table(&out, &ReadOptions::default()).unwrap();
+    assert_eq!(t.frame.height(), 40);
+    for bad in ["1,2", "1,2,x", "1,2,3,4"] {
+        let o = Command::cargo_bin("flowsift")
+            .unwrap()
+            .args([
+                "correct",
+                mock.to_str().unwrap(),
+                "-o",
+                dir.path().join("bad.csv").to_str().unwrap(),
+                "--bulk",
+                bad,
+            ])
+            .output()
+            .unwrap();
+        assert!(!o.status.success());
+        let err = String::from_utf8_lossy(&o.stderr);
+        assert!(err.contains("--bulk") && err.contains(bad), "{err}");
+    }
+}

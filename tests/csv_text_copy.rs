@@ -301,3 +301,40 @@ fn stage_columns_match_polars_output() {
         assert!(x.equals_missing(y), "column {name} differs");
     }
 }
+
+/// `correct` too: a CSV output of a CSV input repeats its lines, then the model columns.
+#[test]
+fn correct_copies_the_input_lines() {
+    let galaxies = reference();
+    let dir = tempfile::tempdir().unwrap();
+    let header = "ra,dec,z_helio,mu,source";
+    let lines = input_lines(&galaxies, ',');
+    let input = dir.path().join("sne.csv");
+    write_input(&input, header, &lines, "\n", "");
+    let output = dir.path().join("sne_corrected.csv");
+    let out = Command::cargo_bin("flowsift")
+        .unwrap()
+        .args([
+            "correct",
+            input.to_str().unwrap(),
+            "-o",
+            output.to_str().unwrap(),
+            "--bulk",
+            "150,-200,80",
+        ])
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let text = std::fs::read_to_string(&output).unwrap();
+    let body: Vec<&str> = text.lines().skip(1).collect();
+    assert_eq!(body.len(), lines.len());
+    for (o, l) in body.iter().zip(&lines) {
+        assert!(o.starts_with(&format!("{l},")), "{o}");
+    }
+    let t = read_table(&output, &ReadOptions::default()).unwrap();
+    assert!(f64s(&t, "v_model").iter().all(|v| v.is_finite()));
+}

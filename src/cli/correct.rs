@@ -90,11 +90,10 @@ pub struct ModelFlags {
     #[arg(
         long,
         value_name = "VX,VY,VZ",
-        value_delimiter = ',',
-        num_args = 3,
-        allow_negative_numbers = true
+        value_parser = super::options::parse_vector3,
+        allow_hyphen_values = true
     )]
-    pub bulk: Option<Vec<f64>>,
+    pub bulk: Option<[f64; 3]>,
     /// Analytic linear infall onto a centre: NAME,X,Y,Z,DELTA0,R_SCALE (positions in the model
     /// length unit); repeat for several centres.
     #[arg(long, value_name = "NAME,X,Y,Z,DELTA0,R", allow_hyphen_values = true)]
@@ -106,11 +105,10 @@ pub struct ModelFlags {
     #[arg(
         long,
         value_name = "VX,VY,VZ",
-        value_delimiter = ',',
-        num_args = 3,
-        allow_negative_numbers = true
+        value_parser = super::options::parse_vector3,
+        allow_hyphen_values = true
     )]
-    pub external: Option<Vec<f64>>,
+    pub external: Option<[f64; 3]>,
     /// Residual velocity dispersion about the model, km/s (default 250, common practice).
     #[arg(long = "sigma-v", value_name = "KM_S", allow_negative_numbers = true)]
     pub sigma_v: Option<f64>,

@@ -32,11 +32,10 @@ pub struct FieldArgs {
     #[arg(
         long,
         value_name = "VX,VY,VZ",
-        value_delimiter = ',',
-        num_args = 3,
-        allow_negative_numbers = true
+        value_parser = super::options::parse_vector3,
+        allow_hyphen_values = true
     )]
-    pub bulk: Option<Vec<f64>>,
+    pub bulk: Option<[f64; 3]>,
     /// Linear infall onto a centre: NAME,X,Y,Z,DELTA0,R_SCALE; repeat for several.
     #[arg(long, value_name = "NAME,X,Y,Z,DELTA0,R", allow_hyphen_values = true)]
     pub infall: Vec<String>,

@@ -33,11 +33,10 @@ pub struct MockArgs {
     #[arg(
         long = "bulk-flow",
         value_name = "VX,VY,VZ",
-        value_delimiter = ',',
-        num_args = 3,
-        allow_negative_numbers = true
+        value_parser = super::options::parse_vector3,
+        allow_hyphen_values = true
     )]
-    pub bulk_flow: Option<Vec<f64>>,
+    pub bulk_flow: Option<[f64; 3]>,
     /// Random radial velocity dispersion, km/s.
     #[arg(long = "sigma-v", value_name = "KM_S", allow_negative_numbers = true)]
     pub sigma_v: Option<f64>,

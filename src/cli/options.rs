@@ -358,3 +358,23 @@ impl BulkFlowFlags {
         }
     }
 }
+
+/// A vector flag written `X,Y,Z` (three numbers, commas, no spaces needed; a leading minus
+/// sign is fine).
+pub fn parse_vector3(text: &str) -> Result<[f64; 3], String> {
+    let parts: Vec<&str> = text.split(',').map(str::trim).collect();
+    if parts.len() != 3 {
+        return Err(format!(
+            "expected three numbers separated by commas (e.g. 150,-200,80), got '{text}'"
+        ));
+    }
+    let mut v = [0.0; 3];
+    for (slot, part) in v.iter_mut().zip(&parts) {
+        *slot = part
+            .parse::<f64>()
+            .ok()
+            .filter(|x| x.is_finite())
+            .ok_or_else(|| format!("'{part}' in '{text}' is not a finite number"))?;
+    }
+    Ok(v)
+}

@@ -8,9 +8,7 @@ use polars::prelude::*;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::catalogue::{
-    read_table, write_table, ColumnMeta, Provenance, ReadOptions, Table, WriteOptions,
-};
+use crate::catalogue::{read_table, ColumnMeta, Provenance, ReadOptions, Table, WriteOptions};
 use crate::flow::correct::{correct_object, LineOfSight, SearchSettings};
 use crate::physics::constants::C_KM_S;
 use crate::physics::cosmology::{Cosmology, LengthUnit};
@@ -96,7 +94,22 @@ pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
             req.output.display()
         ));
     }
-    let table = read_table(&req.input, &ReadOptions::default()).map_err(|e| e.to_string())?;
+    // A delimited output copies the input's columns from its text when it can.
+    let delimited = |p: &std::path::Path| {
+        matches!(
+            crate::catalogue::Format::from_path(p),
+            Ok(crate::catalogue::Format::Csv | crate::catalogue::Format::Tsv)
+        )
+    };
+    let (table, source_text) = if delimited(&req.output) {
+        crate::catalogue::read_table_keeping_text(&req.input, &ReadOptions::default())
+            .map_err(|e| e.to_string())?
+    } else {
+        (
+            read_table(&req.input, &ReadOptions::default()).map_err(|e| e.to_string())?,
+            None,
+        )
+    };
     let names: Vec<String> = table
         .frame
         .get_column_names()
@@ -303,7 +316,7 @@ pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
             ("cautions".into(), cautions.join(" | ")),
         ],
     };
-    write_table(
+    crate::catalogue::write_table_with_text(
         &req.output,
         &out,
         &provenance,
@@ -311,6 +324,7 @@ pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
             force: req.force,
             protected: vec![req.input.clone()],
         },
+        source_text.as_ref(),
     )
     .map_err(|e| e.to_string())?;
     let mut counts: Vec<(String, usize)> = [
