@@ -544,7 +544,8 @@ impl DensityBoundary {
 /// mean of δ over the grid drives a flow: an overdense grid falls in on itself, as a
 /// region denser than its surroundings would.
 ///
-/// Cost: seven FFTs of 8 N_x N_y N_z points; memory about 3 × 16 bytes per padded point.
+/// Cost: seven FFTs of 8 N_x N_y N_z points; memory two complex arrays of that size (16
+/// bytes per padded point each) and the three output components.
 ///
 /// # Panics
 ///
@@ -673,22 +674,27 @@ fn fft_along_axis(data: &mut [Complex<f64>], shape: [usize; 3], axis: usize, fft
         fft.process(data);
         return;
     }
+    // Lines are gathered a bounded number at a time (memory: LINES_PER_PASS · n values,
+    // not a copy of the whole array), transformed, and scattered back.
+    const LINES_PER_PASS: usize = 4096;
     let total = data.len();
     let block = stride * n;
-    let mut lines = Vec::with_capacity(total);
+    let mut lines: Vec<Complex<f64>> = Vec::with_capacity(LINES_PER_PASS.min(stride) * n);
     for outer in (0..total).step_by(block) {
-        for inner in 0..stride {
-            let base = outer + inner;
-            lines.extend((0..n).map(|t| data[base + t * stride]));
-        }
-    }
-    fft.process(&mut lines);
-    let mut it = lines.into_iter();
-    for outer in (0..total).step_by(block) {
-        for inner in 0..stride {
-            let base = outer + inner;
-            for t in 0..n {
-                data[base + t * stride] = it.next().expect("as many values as gathered");
+        for first in (0..stride).step_by(LINES_PER_PASS) {
+            let last = (first + LINES_PER_PASS).min(stride);
+            lines.clear();
+            for inner in first..last {
+                let base = outer + inner;
+                lines.extend((0..n).map(|t| data[base + t * stride]));
+            }
+            fft.process(&mut lines);
+            let mut it = lines.iter();
+            for inner in first..last {
+                let base = outer + inner;
+                for t in 0..n {
+                    data[base + t * stride] = *it.next().expect("as many values as gathered");
+                }
             }
         }
     }
