@@ -364,3 +364,63 @@ fn stages_from_a_run_file() {
     assert_eq!(j["n_used"], json["n_used"]);
     let _ = BTreeMap::<(), ()>::new();
 }
+
+/// `--eta-range LOW,HIGH` in one argument, a negative bound first, as the README writes it:
+/// a narrower range flags more rows for `eta_range`; a malformed range is refused.
+#[test]
+fn eta_range_flag_takes_a_comma_separated_pair() {
+    let dir = tempfile::tempdir().unwrap();
+    let ip = dir.path().join("in.csv");
+    run_ok(&[
+        "mock",
+        "-o",
+        ip.to_str().unwrap(),
+        "--n",
+        "300",
+        "--seed",
+        "8",
+        "--distance-error",
+        "0.2",
+    ]);
+    let count = |range: &str, name: &str| {
+        let op = dir.path().join(name);
+        run_ok(&[
+            "velocities",
+            ip.to_str().unwrap(),
+            "-o",
+            op.to_str().unwrap(),
+            "--outliers",
+            "--eta-range",
+            range,
+        ]);
+        let t = read_table(&op, &ReadOptions::default()).unwrap();
+        let reasons = t
+            .frame
+            .column("outlier_reason")
+            .unwrap()
+            .str()
+            .unwrap()
+            .clone();
+        reasons
+            .iter()
+            .flatten()
+            .filter(|r| r.contains("eta_range"))
+            .count()
+    };
+    assert!(count("-0.05,0.05", "narrow.csv") > count("-0.6,0.6", "wide.csv"));
+    let out = Command::cargo_bin("flowsift")
+        .unwrap()
+        .args([
+            "velocities",
+            ip.to_str().unwrap(),
+            "-o",
+            dir.path().join("bad.csv").to_str().unwrap(),
+            "--outliers",
+            "--eta-range",
+            "-0.5",
+        ])
+        .output()
+        .unwrap();
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("expected two numbers"));
+}

@@ -120,22 +120,8 @@ impl FrameFlags {
 }
 
 fn parse_apex(s: &str) -> Result<[f64; 3], String> {
-    let parts: Vec<_> = s.split(',').map(str::trim).collect();
-    if parts.len() != 3 {
-        return Err(format!(
-            "expected three numbers V,L,B (km/s, deg, deg), got '{s}'"
-        ));
-    }
-    let mut out = [0.0f64; 3];
-    for (o, p) in out.iter_mut().zip(&parts) {
-        *o = p
-            .parse()
-            .map_err(|_| format!("'{p}' in '{s}' is not a number"))?;
-        if !o.is_finite() {
-            return Err(format!("'{p}' in '{s}' is not a finite number"));
-        }
-    }
-    Ok(out)
+    let v = parse_numbers(s, 3, "370,264,48 for V (km/s), l, b (deg)")?;
+    Ok([v[0], v[1], v[2]])
 }
 
 /// Convention flags.
@@ -237,8 +223,8 @@ pub struct OutlierFlags {
     )]
     pub max_speed: Option<f64>,
     /// Flag η outside LOW,HIGH (default -0.6,0.6).
-    #[arg(id = "outlier_eta_range", long = "eta-range", value_name = "LOW,HIGH", value_names = ["LOW", "HIGH"], value_delimiter = ',', num_args = 2, allow_negative_numbers = true, help_heading = "Outliers")]
-    pub eta_range: Option<Vec<f64>>,
+    #[arg(id = "outlier_eta_range", long = "eta-range", value_name = "LOW,HIGH", value_parser = parse_range, allow_hyphen_values = true, help_heading = "Outliers")]
+    pub eta_range: Option<[f64; 2]>,
     /// Residual space: eta (default) or velocity.
     #[arg(
         id = "outlier_space",
@@ -281,7 +267,7 @@ impl OutlierFlags {
             neighbours: self.neighbours,
             neighbour_threshold: self.neighbour_threshold,
             max_speed: self.max_speed,
-            eta_range: self.eta_range.as_ref().map(|v| [v[0], v[1]]),
+            eta_range: self.eta_range,
             space: self.space.map(SpaceArg::space),
             sigma_star: self.sigma_star,
         }
@@ -362,19 +348,36 @@ impl BulkFlowFlags {
 /// A vector flag written `X,Y,Z` (three numbers, commas, no spaces needed; a leading minus
 /// sign is fine).
 pub fn parse_vector3(text: &str) -> Result<[f64; 3], String> {
+    let v = parse_numbers(text, 3, "150,-200,80")?;
+    Ok([v[0], v[1], v[2]])
+}
+
+/// A range flag written `LOW,HIGH`.
+pub fn parse_range(text: &str) -> Result<[f64; 2], String> {
+    let v = parse_numbers(text, 2, "-0.6,0.6")?;
+    Ok([v[0], v[1]])
+}
+
+/// `count` finite numbers separated by commas.
+fn parse_numbers(text: &str, count: usize, example: &str) -> Result<Vec<f64>, String> {
     let parts: Vec<&str> = text.split(',').map(str::trim).collect();
-    if parts.len() != 3 {
+    if parts.len() != count {
+        let words = match count {
+            2 => "two".to_string(),
+            3 => "three".to_string(),
+            n => n.to_string(),
+        };
         return Err(format!(
-            "expected three numbers separated by commas (e.g. 150,-200,80), got '{text}'"
+            "expected {words} numbers separated by commas (e.g. {example}), got '{text}'"
         ));
     }
-    let mut v = [0.0; 3];
-    for (slot, part) in v.iter_mut().zip(&parts) {
-        *slot = part
-            .parse::<f64>()
-            .ok()
-            .filter(|x| x.is_finite())
-            .ok_or_else(|| format!("'{part}' in '{text}' is not a finite number"))?;
-    }
-    Ok(v)
+    parts
+        .iter()
+        .map(|part| {
+            part.parse::<f64>()
+                .ok()
+                .filter(|x| x.is_finite())
+                .ok_or_else(|| format!("'{part}' in '{text}' is not a finite number"))
+        })
+        .collect()
 }
