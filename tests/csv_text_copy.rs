@@ -71,15 +71,11 @@ fn write_input(path: &Path, header: &str, lines: &[String], ending: &str, extra:
     std::fs::write(path, text).unwrap();
 }
 
-fn run(input: &Path, output: &Path) {
+/// Run flowsift; it must succeed.
+fn flowsift(args: &[&str]) {
     let out = Command::cargo_bin("flowsift")
         .unwrap()
-        .args([
-            "velocities",
-            input.to_str().unwrap(),
-            "-o",
-            output.to_str().unwrap(),
-        ])
+        .args(args)
         .output()
         .unwrap();
     assert!(
@@ -87,6 +83,15 @@ fn run(input: &Path, output: &Path) {
         "{}",
         String::from_utf8_lossy(&out.stderr)
     );
+}
+
+fn run(input: &Path, output: &Path) {
+    flowsift(&[
+        "velocities",
+        input.to_str().unwrap(),
+        "-o",
+        output.to_str().unwrap(),
+    ]);
 }
 
 fn f64s(t: &Table, name: &str) -> Vec<f64> {
@@ -228,50 +233,32 @@ fn files_the_copy_cannot_follow_are_written_whole() {
 fn stage_columns_match_polars_output() {
     let dir = tempfile::tempdir().unwrap();
     let mock = dir.path().join("mock.csv");
-    let out = Command::cargo_bin("flowsift")
-        .unwrap()
-        .args([
-            "mock",
-            "-o",
-            mock.to_str().unwrap(),
-            "--scenario",
-            "lantern",
-            "--n",
-            "600",
-            "--seed",
-            "4",
-            "--outlier-fraction",
-            "0.05",
-        ])
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    flowsift(&[
+        "mock",
+        "-o",
+        mock.to_str().unwrap(),
+        "--scenario",
+        "lantern",
+        "--n",
+        "600",
+        "--seed",
+        "4",
+        "--outlier-fraction",
+        "0.05",
+    ]);
     let quoted = dir.path().join("mock_quoted.csv");
     let text = std::fs::read_to_string(&mock).unwrap();
     std::fs::write(&quoted, format!("# \"via polars\"\n{text}")).unwrap();
     let mut tables = vec![];
     for (input, output) in [(&mock, "copied.csv"), (&quoted, "whole.csv")] {
         let output = dir.path().join(output);
-        let out = Command::cargo_bin("flowsift")
-            .unwrap()
-            .args([
-                "velocities",
-                input.to_str().unwrap(),
-                "-o",
-                output.to_str().unwrap(),
-                "--outliers",
-            ])
-            .output()
-            .unwrap();
-        assert!(
-            out.status.success(),
-            "{}",
-            String::from_utf8_lossy(&out.stderr)
-        );
+        flowsift(&[
+            "velocities",
+            input.to_str().unwrap(),
+            "-o",
+            output.to_str().unwrap(),
+            "--outliers",
+        ]);
         tables.push(read_table(&output, &ReadOptions::default()).unwrap());
     }
     // The first output is the copy: its lines begin with the input's.
@@ -312,23 +299,14 @@ fn correct_copies_the_input_lines() {
     let input = dir.path().join("sne.csv");
     write_input(&input, header, &lines, "\n", "");
     let output = dir.path().join("sne_corrected.csv");
-    let out = Command::cargo_bin("flowsift")
-        .unwrap()
-        .args([
-            "correct",
-            input.to_str().unwrap(),
-            "-o",
-            output.to_str().unwrap(),
-            "--bulk",
-            "150,-200,80",
-        ])
-        .output()
-        .unwrap();
-    assert!(
-        out.status.success(),
-        "{}",
-        String::from_utf8_lossy(&out.stderr)
-    );
+    flowsift(&[
+        "correct",
+        input.to_str().unwrap(),
+        "-o",
+        output.to_str().unwrap(),
+        "--bulk",
+        "150,-200,80",
+    ]);
     let text = std::fs::read_to_string(&output).unwrap();
     let body: Vec<&str> = text.lines().skip(1).collect();
     assert_eq!(body.len(), lines.len());

@@ -119,6 +119,21 @@ fn window_objects() -> (Vec<[f64; 3]>, Vec<[f64; 3]>) {
     (pos, w)
 }
 
+/// The covariance of power_covariance.csv (per-pair adaptive quadrature, scipy) and the
+/// growth rate it was computed with.
+fn gridless_covariance() -> ([[f64; 3]; 3], f64) {
+    let t = Table::read("power_covariance.csv");
+    let mut want = [[0.0; 3]; 3];
+    let mut f = 0.0;
+    for r in t.records() {
+        let (i, j) = (r.u("i"), r.u("j"));
+        want[i][j] = r.f("r_ij");
+        want[j][i] = r.f("r_ij");
+        f = r.f("f");
+    }
+    (want, f)
+}
+
 /// Largest |a_ij − b_ij| relative to the largest |b_ij| (entries that cancel to nearly zero
 /// are judged on the matrix's scale).
 fn matrix_rel(a: &[[f64; 3]; 3], b: &[[f64; 3]; 3]) -> f64 {
@@ -416,15 +431,7 @@ fn tophat_bulk_flow_matches_quadrature() {
 fn covariance_matches_gridless_quadrature() {
     let (pos, w) = window_objects();
     let lp = LinearPower::new(param_sets()["planck18"].0);
-    let t = Table::read("power_covariance.csv");
-    let mut want = [[0.0; 3]; 3];
-    let mut f = 0.0;
-    for r in t.records() {
-        let (i, j) = (r.u("i"), r.u("j"));
-        want[i][j] = r.f("r_ij");
-        want[j][i] = r.f("r_ij");
-        f = r.f("f");
-    }
+    let (want, f) = gridless_covariance();
     let got = lcdm_bulk_flow_covariance(&lp, f, &pos, &w);
     let e = matrix_rel(&got, &want);
     assert!(e < 5e-4, "{e}\n{got:?}\n{want:?}");
@@ -440,15 +447,7 @@ fn covariance_matches_gridless_quadrature() {
 fn separation_table_covariance_matches_quadrature_and_grid() {
     let (pos, w) = window_objects();
     let lp = LinearPower::new(param_sets()["planck18"].0);
-    let t = Table::read("power_covariance.csv");
-    let mut want = [[0.0; 3]; 3];
-    let mut f = 0.0;
-    for r in t.records() {
-        let (i, j) = (r.u("i"), r.u("j"));
-        want[i][j] = r.f("r_ij");
-        want[j][i] = r.f("r_ij");
-        f = r.f("f");
-    }
+    let (want, f) = gridless_covariance();
     let got = lcdm_bulk_flow_covariance_by_separation(&lp, f, &pos, &w);
     let e = matrix_rel(&got, &want);
     assert!(e < 2e-6, "gridless fixture: {e}\n{got:?}\n{want:?}");

@@ -126,15 +126,9 @@ pub fn read_field(
     axes_hint: Option<FieldAxes>,
     unit_hint: Option<LengthUnit>,
 ) -> Result<VelocityGrid, CatalogueError> {
-    if !path.exists() {
-        return Err(CatalogueError::read(path, "no such file"));
-    }
     let err = |m: String| CatalogueError::read(path, m);
-    if Format::from_path(path)? == Format::Fits {
-        let file = FitsHandle::open(path).map_err(err)?;
-        if file.find_hdu(EXTNAMES[0]).map_err(err)?.is_some() {
-            return read_image_form(&file, axes_hint, unit_hint).map_err(err);
-        }
+    if let Some(file) = fits_with_image(path, EXTNAMES[0])? {
+        return read_image_form(&file, axes_hint, unit_hint).map_err(err);
     }
     let table = read_table(path, &ReadOptions::default())?;
     grid_from_table(&table, axes_hint, unit_hint).map_err(err)
@@ -150,22 +144,9 @@ pub fn read_density(
     axes_hint: Option<FieldAxes>,
     unit_hint: Option<LengthUnit>,
 ) -> Result<VelocityGrid, CatalogueError> {
-    if !path.exists() {
-        return Err(CatalogueError::read(path, "no such file"));
-    }
     let err = |m: String| CatalogueError::read(path, m);
-    let grid = if Format::from_path(path)? == Format::Fits {
-        let file = FitsHandle::open(path).map_err(err)?;
-        if file.find_hdu(DENSITY_EXTNAME).map_err(err)?.is_some() {
-            Some(read_density_image(&file, axes_hint, unit_hint).map_err(err)?)
-        } else {
-            None
-        }
-    } else {
-        None
-    };
-    let grid = match grid {
-        Some(g) => g,
+    let grid = match fits_with_image(path, DENSITY_EXTNAME)? {
+        Some(file) => read_density_image(&file, axes_hint, unit_hint).map_err(err)?,
         None => read_density_table(path, axes_hint, unit_hint)?,
     };
     if let Some(idx) = grid.v[0].iter().position(|d| !(d.is_finite() && *d > -1.0)) {
@@ -182,6 +163,20 @@ pub fn read_density(
         )));
     }
     Ok(grid)
+}
+
+/// The open file when `path` is a FITS file with an HDU named `extname`; `None` for any
+/// other file (read as a table then). A missing file is an error.
+fn fits_with_image(path: &Path, extname: &str) -> Result<Option<FitsHandle>, CatalogueError> {
+    if !path.exists() {
+        return Err(CatalogueError::read(path, "no such file"));
+    }
+    if Format::from_path(path)? != Format::Fits {
+        return Ok(None);
+    }
+    let err = |m: String| CatalogueError::read(path, m);
+    let file = FitsHandle::open(path).map_err(err)?;
+    Ok(file.find_hdu(extname).map_err(err)?.map(|_| file))
 }
 
 /// The table form of [`read_density`].

@@ -416,19 +416,7 @@ pub fn velocity_from_density(
     growth_rate: f64,
     h0_km_s_per_length: f64,
 ) -> [Vec<f64>; 3] {
-    let n = cell_count(shape).expect("velocity_from_density: unusable grid shape");
-    assert_eq!(
-        delta.len(),
-        n,
-        "velocity_from_density: delta has {} values but shape {:?} has {} cells",
-        delta.len(),
-        shape,
-        n
-    );
-    assert!(
-        spacing.is_finite() && spacing > 0.0,
-        "velocity_from_density: spacing must be positive and finite, got {spacing}"
-    );
+    let n = check_density_grid("velocity_from_density", delta, shape, spacing);
 
     let mut planner = FftPlanner::<f64>::new();
     let forward: Vec<_> = shape.iter().map(|&m| planner.plan_fft_forward(m)).collect();
@@ -557,19 +545,7 @@ pub fn velocity_from_density_isolated(
     growth_rate: f64,
     h0_km_s_per_length: f64,
 ) -> [Vec<f64>; 3] {
-    let n = cell_count(shape).expect("velocity_from_density_isolated: unusable grid shape");
-    assert_eq!(
-        delta.len(),
-        n,
-        "velocity_from_density_isolated: delta has {} values but shape {:?} has {} cells",
-        delta.len(),
-        shape,
-        n
-    );
-    assert!(
-        spacing.is_finite() && spacing > 0.0,
-        "velocity_from_density_isolated: spacing must be positive and finite, got {spacing}"
-    );
+    let n = check_density_grid("velocity_from_density_isolated", delta, shape, spacing);
     // A doubled axis of length 2N_a holds offsets −(N_a − 1) … N_a − 1 without overlap. An
     // axis of one cell stays one cell (offsets are all zero along it).
     let padded: [usize; 3] = shape.map(|m| if m == 1 { 1 } else { 2 * m });
@@ -657,6 +633,28 @@ pub fn velocity_from_density_isolated(
         *component = values;
     }
     out
+}
+
+/// The number of cells of a density grid, after the checks both solvers make.
+///
+/// # Panics
+/// If `delta.len()` differs from N_x N_y N_z, an axis is empty, or `spacing` is not positive
+/// and finite (`caller` names the solver).
+fn check_density_grid(caller: &str, delta: &[f64], shape: [usize; 3], spacing: f64) -> usize {
+    let n = cell_count(shape).unwrap_or_else(|_| panic!("{caller}: unusable grid shape"));
+    assert_eq!(
+        delta.len(),
+        n,
+        "{caller}: delta has {} values but shape {:?} has {} cells",
+        delta.len(),
+        shape,
+        n
+    );
+    assert!(
+        spacing.is_finite() && spacing > 0.0,
+        "{caller}: spacing must be positive and finite, got {spacing}"
+    );
+    n
 }
 
 /// One-dimensional transforms along `axis` of an x-fastest 3-D array, all lines at once.

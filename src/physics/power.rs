@@ -606,6 +606,30 @@ struct Obj {
     w: [f64; 3],
 }
 
+/// The pair sums' per-object data: position, direction and weights.
+///
+/// # Panics
+/// If `positions` and `weights` differ in length (`caller` names the function).
+fn objects(caller: &str, positions: &[[f64; 3]], weights: &[[f64; 3]]) -> Vec<Obj> {
+    assert_eq!(
+        positions.len(),
+        weights.len(),
+        "{caller}: one weight triple per position"
+    );
+    positions
+        .iter()
+        .zip(weights)
+        .map(|(r, w)| {
+            let norm = dot(r, r).sqrt();
+            Obj {
+                r: *r,
+                u: [r[0] / norm, r[1] / norm, r[2] / norm],
+                w: *w,
+            }
+        })
+        .collect()
+}
+
 #[inline(always)]
 fn dot(a: &[f64; 3], b: &[f64; 3]) -> f64 {
     a[0] * b[0] + a[1] * b[1] + a[2] * b[2]
@@ -764,25 +788,9 @@ pub fn bulk_flow_window(
     weights: &[[f64; 3]],
     k: &[f64],
 ) -> Vec<[[f64; 3]; 3]> {
-    assert_eq!(
-        positions.len(),
-        weights.len(),
-        "bulk_flow_window: one weight triple per position"
-    );
-    let n = positions.len();
+    let objs = objects("bulk_flow_window", positions, weights);
+    let n = objs.len();
     let nk = k.len();
-    let objs: Vec<Obj> = positions
-        .iter()
-        .zip(weights)
-        .map(|(r, w)| {
-            let norm = dot(r, r).sqrt();
-            Obj {
-                r: *r,
-                u: [r[0] / norm, r[1] / norm, r[2] / norm],
-                w: *w,
-            }
-        })
-        .collect();
     // A fixed number of blocks (from the input size only), summed in a fixed order, so the
     // result does not depend on the number of threads. Memory: n_blocks · 6 · nk doubles.
     let pairs = n * n.saturating_sub(1) / 2;
@@ -1025,24 +1033,12 @@ pub fn lcdm_bulk_flow_covariance_by_separation(
     positions: &[[f64; 3]],
     weights: &[[f64; 3]],
 ) -> [[f64; 3]; 3] {
-    assert_eq!(
-        positions.len(),
-        weights.len(),
-        "lcdm_bulk_flow_covariance_by_separation: one weight triple per position"
+    let objs = objects(
+        "lcdm_bulk_flow_covariance_by_separation",
+        positions,
+        weights,
     );
-    let n = positions.len();
-    let objs: Vec<Obj> = positions
-        .iter()
-        .zip(weights)
-        .map(|(r, w)| {
-            let norm = dot(r, r).sqrt();
-            Obj {
-                r: *r,
-                u: [r[0] / norm, r[1] / norm, r[2] / norm],
-                w: *w,
-            }
-        })
-        .collect();
+    let n = objs.len();
     let r_max = positions
         .iter()
         .fold(0.0_f64, |m, r| m.max(dot(r, r).sqrt()));
