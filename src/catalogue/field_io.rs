@@ -588,25 +588,14 @@ fn read_image_form(
                 EXTNAMES[0]
             )
         })?;
-        if hdu_type != IMAGE_HDU {
-            return Err(format!("HDU {name} is a table, not an image"));
-        }
-        let shape = file.image_shape().map_err(|m| format!("HDU {name}: {m}"))?;
-        let cards = Cards::read(file, name)?.or(&primary);
-        let g = resolve_geometry(name, &cards, shape, axes_hint, unit_hint, Pixels::Velocity)?;
-        let values = file
-            .read_image(shape)
-            .map_err(|m| format!("HDU {name}: {m}"))?;
-        if let Some(idx) = values.iter().position(|x| !x.is_finite()) {
-            let (nx, ny) = (shape[0], shape[1]);
-            return Err(format!(
-                "HDU {name}: pixel [{}, {}, {}] is {}; field velocities must be finite",
-                idx % nx + 1,
-                (idx / nx) % ny + 1,
-                idx / (nx * ny) + 1,
-                values[idx]
-            ));
-        }
+        let (g, values) = read_image_hdu(
+            file,
+            name,
+            hdu_type,
+            &primary,
+            (axes_hint, unit_hint),
+            Pixels::Velocity,
+        )?;
         if let Some((first, first_name)) = &geometry {
             if *first != g {
                 return Err(format!(
@@ -636,25 +625,14 @@ fn read_density_image(
     let hdu_type = file
         .find_hdu(name)?
         .ok_or_else(|| format!("no {name} HDU"))?;
-    if hdu_type != IMAGE_HDU {
-        return Err(format!("HDU {name} is a table, not an image"));
-    }
-    let shape = file.image_shape().map_err(|m| format!("HDU {name}: {m}"))?;
-    let cards = Cards::read(file, name)?.or(&primary);
-    let g = resolve_geometry(name, &cards, shape, axes_hint, unit_hint, Pixels::Contrast)?;
-    let values = file
-        .read_image(shape)
-        .map_err(|m| format!("HDU {name}: {m}"))?;
-    if let Some(idx) = values.iter().position(|d| !(*d > -1.0 && d.is_finite())) {
-        let (nx, ny) = (shape[0], shape[1]);
-        return Err(format!(
-            "HDU {name}: pixel [{}, {}, {}] is {}; a density contrast must be finite and above −1",
-            idx % nx + 1,
-            (idx / nx) % ny + 1,
-            idx / (nx * ny) + 1,
-            values[idx]
-        ));
-    }
+    let (g, values) = read_image_hdu(
+        file,
+        name,
+        hdu_type,
+        &primary,
+        (axes_hint, unit_hint),
+        Pixels::Contrast,
+    )?;
     let n = values.len();
     VelocityGrid::new(
         g.origin,
@@ -665,6 +643,49 @@ fn read_density_image(
         [values, vec![0.0; n], vec![0.0; n]],
     )
     .map_err(|e| e.to_string())
+}
+
+/// One image HDU of a field or density file (the current HDU, of type `hdu_type`): its
+/// geometry from its cards (the primary's where missing) and its pixels, each checked —
+/// finite for a velocity, finite and above −1 for a density contrast.
+fn read_image_hdu(
+    file: &FitsHandle,
+    name: &str,
+    hdu_type: c_int,
+    primary: &Cards,
+    hints: (Option<FieldAxes>, Option<LengthUnit>),
+    pixels: Pixels,
+) -> Result<(Geometry, Vec<f64>), String> {
+    if hdu_type != IMAGE_HDU {
+        return Err(format!("HDU {name} is a table, not an image"));
+    }
+    let shape = file.image_shape().map_err(|m| format!("HDU {name}: {m}"))?;
+    let cards = Cards::read(file, name)?.or(primary);
+    let g = resolve_geometry(name, &cards, shape, hints.0, hints.1, pixels)?;
+    let values = file
+        .read_image(shape)
+        .map_err(|m| format!("HDU {name}: {m}"))?;
+    let (bad, rule) = match pixels {
+        Pixels::Velocity => (
+            values.iter().position(|x| !x.is_finite()),
+            "field velocities must be finite",
+        ),
+        Pixels::Contrast => (
+            values.iter().position(|d| !(d.is_finite() && *d > -1.0)),
+            "a density contrast must be finite and above −1",
+        ),
+    };
+    if let Some(idx) = bad {
+        let (nx, ny) = (shape[0], shape[1]);
+        return Err(format!(
+            "HDU {name}: pixel [{}, {}, {}] is {}; {rule}",
+            idx % nx + 1,
+            (idx / nx) % ny + 1,
+            idx / (nx * ny) + 1,
+            values[idx]
+        ));
+    }
+    Ok((g, values))
 }
 
 fn describe(g: &Geometry) -> String {
