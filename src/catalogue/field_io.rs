@@ -570,14 +570,19 @@ fn resolve_geometry(
     })
 }
 
+/// The format's cards of the primary header (the fallback for every image's own).
+fn primary_cards(file: &FitsHandle) -> Result<Cards, String> {
+    file.move_to(0)
+        .map_err(|s| format!("cannot read the primary header: {}", status_text(s)))?;
+    Cards::read(file, "primary")
+}
+
 fn read_image_form(
     file: &FitsHandle,
     axes_hint: Option<FieldAxes>,
     unit_hint: Option<LengthUnit>,
 ) -> Result<VelocityGrid, String> {
-    file.move_to(0)
-        .map_err(|s| format!("cannot read the primary header: {}", status_text(s)))?;
-    let primary = Cards::read(file, "primary")?;
+    let primary = primary_cards(file)?;
     let mut geometry: Option<(Geometry, &str)> = None;
     let mut v: [Vec<f64>; 3] = [Vec::new(), Vec::new(), Vec::new()];
     for (c, &name) in EXTNAMES.iter().enumerate() {
@@ -618,9 +623,7 @@ fn read_density_image(
     axes_hint: Option<FieldAxes>,
     unit_hint: Option<LengthUnit>,
 ) -> Result<VelocityGrid, String> {
-    file.move_to(0)
-        .map_err(|s| format!("cannot read the primary header: {}", status_text(s)))?;
-    let primary = Cards::read(file, "primary")?;
+    let primary = primary_cards(file)?;
     let name = DENSITY_EXTNAME;
     let hdu_type = file
         .find_hdu(name)?
