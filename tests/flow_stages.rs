@@ -6,7 +6,7 @@ use std::collections::BTreeMap;
 
 use assert_cmd::Command;
 use flowsift::catalogue::{read_table, write_table, Provenance, ReadOptions, Table, WriteOptions};
-use flowsift::flow::outliers::{flag_outliers, FitSpace, OutlierChoice};
+use flowsift::flow::outliers::{flag_outliers, OutlierSettings};
 use flowsift::flow::FlowSample;
 use flowsift::mock::{generate, MockCatalogue, MockSpec};
 use flowsift::physics::bulkflow::{fit_bulk_flow, FlowData, SigmaStar};
@@ -16,6 +16,7 @@ use flowsift::physics::object::ObjectContext;
 use flowsift::physics::restframe::{default_apex, Boost, BoostMethod};
 use flowsift::physics::sky::SkyRotations;
 use flowsift::pipeline::{derive, InputColumns};
+use flowsift::settings::{FitSpace, OutlierChoice};
 use polars::prelude::*;
 
 fn cosmology() -> Cosmology {
@@ -140,7 +141,7 @@ fn bulk_flow_errors_cover_the_truth() {
 #[test]
 fn injected_outliers_are_found() {
     let c = cosmology();
-    let settings = OutlierChoice::default().resolve().unwrap();
+    let settings = OutlierSettings::from_choice(&OutlierChoice::default()).unwrap();
     for seed in [11, 12, 13] {
         let m = mock(&MockSpec {
             outlier_fraction: 0.02,

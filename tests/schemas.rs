@@ -3,7 +3,7 @@
 
 use std::path::PathBuf;
 
-use flowsift::plan::{RunConfig, EXAMPLE_CONFIG};
+use flowsift::settings::{RunConfig, EXAMPLE_CONFIG};
 
 #[test]
 fn run_config_schema_is_current() {

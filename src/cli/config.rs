@@ -5,7 +5,7 @@ use std::path::PathBuf;
 use anyhow::anyhow;
 use clap::Args;
 
-use flowsift::plan::{RunConfig, EXAMPLE_CONFIG};
+use flowsift::settings::{RunConfig, EXAMPLE_CONFIG};
 
 /// Write an example run file or the schema.
 #[derive(Debug, Args)]

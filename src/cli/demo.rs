@@ -8,9 +8,9 @@ use clap::Args;
 
 use flowsift::catalogue::{read_table, ReadOptions, Table};
 use flowsift::mock::MockSpec;
-use flowsift::plan::{ErrorChoice, RunConfig};
 use flowsift::run::{run_velocities, Stage, VelocityRequest};
 use flowsift::settings::ConventionChoice;
+use flowsift::settings::{ErrorChoice, RunConfig};
 
 use super::velocities::{print_summary, Progress};
 

@@ -252,17 +252,17 @@ pub enum SpaceArg {
 }
 
 impl SpaceArg {
-    pub fn space(self) -> flowsift::flow::outliers::FitSpace {
+    pub fn space(self) -> flowsift::settings::FitSpace {
         match self {
-            SpaceArg::Eta => flowsift::flow::outliers::FitSpace::Eta,
-            SpaceArg::Velocity => flowsift::flow::outliers::FitSpace::Velocity,
+            SpaceArg::Eta => flowsift::settings::FitSpace::Eta,
+            SpaceArg::Velocity => flowsift::settings::FitSpace::Velocity,
         }
     }
 }
 
 impl OutlierFlags {
-    pub fn choice(&self) -> flowsift::flow::outliers::OutlierChoice {
-        flowsift::flow::outliers::OutlierChoice {
+    pub fn choice(&self) -> flowsift::settings::OutlierChoice {
+        flowsift::settings::OutlierChoice {
             threshold: self.threshold,
             neighbours: self.neighbours,
             neighbour_threshold: self.neighbour_threshold,
@@ -332,8 +332,8 @@ pub struct BulkFlowFlags {
 }
 
 impl BulkFlowFlags {
-    pub fn choice(&self) -> flowsift::flow::bulk::BulkFlowChoice {
-        flowsift::flow::bulk::BulkFlowChoice {
+    pub fn choice(&self) -> flowsift::settings::BulkFlowChoice {
+        flowsift::settings::BulkFlowChoice {
             space: self.space.map(SpaceArg::space),
             sigma_star: self.sigma_star,
             skip_outliers: self.include_outliers.then_some(false),

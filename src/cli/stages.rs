@@ -8,9 +8,8 @@ use clap::Args;
 
 use flowsift::catalogue::{read_table, write_table, Provenance, ReadOptions, WriteOptions};
 use flowsift::flow::export::export_table;
-use flowsift::flow::groups::GroupChoice;
-use flowsift::plan::MalmquistChoice;
 use flowsift::run::stages::{add_outliers, bulk_flow_of, sibling_path};
+use flowsift::settings::{GroupChoice, MalmquistChoice};
 
 use super::options::{BulkFlowFlags, CosmologyFlags, OutlierFlags};
 use super::velocities::{merged_config, run_with, VelocitiesArgs};
@@ -50,7 +49,8 @@ pub struct OutliersArgs {
 }
 
 pub fn outliers(a: OutliersArgs) -> anyhow::Result<()> {
-    let settings = a.flags.choice().resolve().map_err(|e| anyhow!(e))?;
+    let settings = flowsift::flow::outliers::OutlierSettings::from_choice(&a.flags.choice())
+        .map_err(|e| anyhow!(e))?;
     let cosmology = a
         .cosmology
         .choice()

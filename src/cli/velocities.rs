@@ -9,15 +9,12 @@ use anyhow::anyhow;
 use clap::{Args, ValueEnum};
 use indicatif::{ProgressBar, ProgressStyle};
 
-use flowsift::flow::bulk::BulkFlowChoice;
-use flowsift::flow::groups::GroupChoice;
-use flowsift::flow::outliers::OutlierChoice;
 use flowsift::physics::estimators::DistanceKind;
-use flowsift::plan::{
-    AngleUnit, ColumnChoice, ErrorChoice, ExportChoice, InputChoice, MalmquistChoice, RedshiftUnit,
-    RunConfig,
-};
 use flowsift::run::{run_velocities, RunSummary, Stage, VelocityRequest};
+use flowsift::settings::{
+    AngleUnit, BulkFlowChoice, ColumnChoice, ErrorChoice, ExportChoice, GroupChoice, InputChoice,
+    MalmquistChoice, OutlierChoice, RedshiftUnit, RunConfig,
+};
 
 use super::options::{BulkFlowFlags, ConventionFlags, CosmologyFlags, FrameFlags, OutlierFlags};
 

@@ -2,49 +2,15 @@
 //! Galactic, supergalactic and equatorial axes, with the ΛCDM expectation for the sample's
 //! own window (Watkins, Feldman & Hudson 2009) when asked for.
 
-use schemars::JsonSchema;
-use serde::{Deserialize, Serialize};
+use serde::Serialize;
 
 use crate::physics::bulkflow::{amplitude_direction, BulkFlowFit, SigmaStar};
 use crate::physics::cosmology::Cosmology;
 use crate::physics::sky::{Rotation, SkyFrame, SkyRotations};
 
-use super::outliers::{fit_subset, fit_vectors, fittable, FitSpace};
+use super::outliers::{fit_subset, fit_vectors, fittable};
 use super::FlowSample;
-
-/// Bulk-flow settings as the user gives them (run file `[bulk_flow]`, or flags).
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
-pub struct BulkFlowChoice {
-    /// Fit space: eta (default) or velocity.
-    pub space: Option<FitSpace>,
-    /// Intrinsic dispersion σ_*, km/s; absent: fitted.
-    pub sigma_star: Option<f64>,
-    /// Leave out rows flagged as outliers (default true).
-    pub skip_outliers: Option<bool>,
-    /// Compute the ΛCDM expectation for the sample's window (default true).
-    pub lcdm: Option<bool>,
-    /// σ8 of the linear power spectrum (default: Planck 2018).
-    pub sigma8: Option<f64>,
-    /// Baryon density Ω_b (default: Planck 2018).
-    pub omega_b: Option<f64>,
-    /// Spectral index n_s (default: Planck 2018).
-    pub n_s: Option<f64>,
-}
-
-impl BulkFlowChoice {
-    pub fn overlay(&self, o: &BulkFlowChoice) -> BulkFlowChoice {
-        BulkFlowChoice {
-            space: o.space.or(self.space),
-            sigma_star: o.sigma_star.or(self.sigma_star),
-            skip_outliers: o.skip_outliers.or(self.skip_outliers),
-            lcdm: o.lcdm.or(self.lcdm),
-            sigma8: o.sigma8.or(self.sigma8),
-            omega_b: o.omega_b.or(self.omega_b),
-            n_s: o.n_s.or(self.n_s),
-        }
-    }
-}
+use crate::settings::FitSpace;
 
 /// A vector and its covariance in one set of axes.
 #[derive(Debug, Clone, Serialize)]

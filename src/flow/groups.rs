@@ -10,33 +10,8 @@
 
 use std::collections::HashMap;
 
-use schemars::JsonSchema;
-use serde::{Deserialize, Serialize};
-
 use crate::physics::estimators::DistanceKind;
 use crate::physics::sky::{Direction, Icrs};
-
-/// Group settings as the user gives them (run file `[groups]`, or flags).
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
-pub struct GroupChoice {
-    /// Column marking each group's central member (true/1); its redshift is the group's.
-    pub central_column: Option<String>,
-    /// Where to write the group table (default: `<output stem>.groups.<ext>` next to it).
-    pub output: Option<String>,
-}
-
-impl GroupChoice {
-    pub fn overlay(&self, o: &GroupChoice) -> GroupChoice {
-        GroupChoice {
-            central_column: o
-                .central_column
-                .clone()
-                .or_else(|| self.central_column.clone()),
-            output: o.output.clone().or_else(|| self.output.clone()),
-        }
-    }
-}
 
 /// Per-member inputs (all slices of the same length).
 #[derive(Debug, Clone, Copy)]

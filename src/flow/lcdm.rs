@@ -3,7 +3,8 @@
 use crate::physics::bulkflow::BulkFlowFit;
 use crate::physics::cosmology::Cosmology;
 
-use super::bulk::{BulkFlowChoice, LcdmComparison};
+use super::bulk::LcdmComparison;
+use crate::settings::BulkFlowChoice;
 
 /// The ΛCDM expectation for a fitted flow: the covariance of the ML estimator under linear
 /// theory, R_ij = (H0 f)²/(2π²) ∫ dk P(k) W²_ij(k), with the window W² built from the fit's

@@ -16,80 +16,27 @@ use std::num::NonZero;
 
 use kiddo::{ImmutableKdTree, SquaredEuclidean};
 use rayon::prelude::*;
-use schemars::JsonSchema;
-use serde::{Deserialize, Serialize};
 
 use crate::physics::bulkflow::{eta_per_velocity, fit_bulk_flow, BulkFlowFit, FlowData, SigmaStar};
 use crate::physics::cosmology::Cosmology;
 
 use super::FlowSample;
 
-/// Which quantity the flow is fitted to.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, JsonSchema)]
-#[serde(rename_all = "kebab-case")]
-pub enum FitSpace {
-    /// Log-distance ratio η with κ = ∂η/∂v (default).
-    #[default]
-    Eta,
-    /// Radial peculiar velocity.
-    Velocity,
-}
+pub use crate::settings::FitSpace;
+use crate::settings::OutlierChoice;
 
-impl FitSpace {
-    pub fn name(self) -> &'static str {
-        match self {
-            FitSpace::Eta => "eta",
-            FitSpace::Velocity => "velocity",
-        }
-    }
-}
-
-/// Outlier settings as the user gives them (run file `[outliers]`, or flags).
-#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
-#[serde(deny_unknown_fields)]
-pub struct OutlierChoice {
-    /// Residual threshold in σ (default 3.5).
-    pub threshold: Option<f64>,
-    /// Number of neighbours for the consistency test (default 10; 0 turns it off).
-    pub neighbours: Option<usize>,
-    /// Neighbour-consistency threshold in σ (default 3.5).
-    pub neighbour_threshold: Option<f64>,
-    /// Flag |v_pec| above this, km/s (default: no bound).
-    pub max_speed: Option<f64>,
-    /// Flag η outside [low, high] (default [−0.6, 0.6], a factor 4 in distance).
-    pub eta_range: Option<[f64; 2]>,
-    /// Fit space for residuals: eta (default) or velocity.
-    pub space: Option<FitSpace>,
-    /// Intrinsic dispersion σ_*, km/s; absent: fitted.
-    pub sigma_star: Option<f64>,
-}
-
-impl OutlierChoice {
-    pub fn overlay(&self, o: &OutlierChoice) -> OutlierChoice {
-        OutlierChoice {
-            threshold: o.threshold.or(self.threshold),
-            neighbours: o.neighbours.or(self.neighbours),
-            neighbour_threshold: o.neighbour_threshold.or(self.neighbour_threshold),
-            max_speed: o.max_speed.or(self.max_speed),
-            eta_range: o.eta_range.or(self.eta_range),
-            space: o.space.or(self.space),
-            sigma_star: o.sigma_star.or(self.sigma_star),
-        }
-    }
-
+impl OutlierSettings {
     /// Resolved settings, checked.
-    pub fn resolve(&self) -> Result<OutlierSettings, String> {
+    pub fn from_choice(choice: &OutlierChoice) -> Result<OutlierSettings, String> {
+        let c = choice;
         let s = OutlierSettings {
-            threshold: self.threshold.unwrap_or(3.5),
-            neighbours: self.neighbours.unwrap_or(10),
-            neighbour_threshold: self.neighbour_threshold.unwrap_or(3.5),
-            max_speed: self.max_speed,
-            eta_range: self.eta_range.unwrap_or([-0.6, 0.6]),
-            space: self.space.unwrap_or_default(),
-            sigma_star: self
-                .sigma_star
-                .map(SigmaStar::Fixed)
-                .unwrap_or(SigmaStar::Fit),
+            threshold: c.threshold.unwrap_or(3.5),
+            neighbours: c.neighbours.unwrap_or(10),
+            neighbour_threshold: c.neighbour_threshold.unwrap_or(3.5),
+            max_speed: c.max_speed,
+            eta_range: c.eta_range.unwrap_or([-0.6, 0.6]),
+            space: c.space.unwrap_or_default(),
+            sigma_star: c.sigma_star.map(SigmaStar::Fixed).unwrap_or(SigmaStar::Fit),
         };
         for (name, v) in [
             ("threshold", s.threshold),

@@ -8,7 +8,8 @@ use crate::catalogue::Table;
 use crate::physics::constants::{C_KM_S, DEG};
 use crate::physics::estimators::DistanceKind;
 use crate::physics::sky::{parse_dec_deg, parse_ra_deg};
-use crate::plan::{AngleUnit, ColumnPlan, RedshiftUnit};
+use crate::plan::ColumnPlan;
+use crate::settings::{AngleUnit, RedshiftUnit};
 
 use super::status::RowStatus;
 

@@ -19,7 +19,7 @@ use crate::physics::restframe::{legacy_additive, BoostMethod};
 use crate::physics::sky::{Direction, Icrs, SkyRotations};
 use crate::pipeline::inputs::{read_numbers, Reading};
 use crate::plan::columns::find_name;
-use crate::plan::{AngleUnit, RedshiftUnit};
+use crate::settings::{AngleUnit, RedshiftUnit};
 use crate::settings::{CosmologyChoice, FrameChoice};
 
 /// What to correct, and with what.

@@ -17,8 +17,8 @@ use crate::physics::object::ObjectContext;
 use crate::physics::sky::SkyRotations;
 use crate::pipeline::{self, montecarlo, RowStatus};
 use crate::plan::columns::resolve_columns;
-use crate::plan::RunConfig;
 use crate::settings::cautions;
+use crate::settings::RunConfig;
 
 /// What to run.
 pub struct VelocityRequest<'a> {
@@ -342,7 +342,7 @@ pub fn run_velocities(req: &VelocityRequest<'_>) -> Result<RunSummary, String> {
             None => &mut out_table,
         };
         if let Some(oc) = &cfg.outliers {
-            let settings = oc.resolve()?;
+            let settings = crate::flow::outliers::OutlierSettings::from_choice(oc)?;
             let r = stages::add_outliers(flow_table, &cosmology, &settings)?;
             let (per, total) = r.counts();
             outlier_summary = Some((

@@ -6,8 +6,8 @@ use std::path::Path;
 use polars::prelude::*;
 
 use crate::catalogue::{read_table, ColumnMeta, ReadOptions, Table};
-use crate::flow::bulk::{bulk_flow, BulkFlowChoice, BulkFlowReport};
-use crate::flow::groups::{combine, GroupChoice, Groups, Members};
+use crate::flow::bulk::{bulk_flow, BulkFlowReport};
+use crate::flow::groups::{combine, Groups, Members};
 use crate::flow::lcdm::lcdm_comparison;
 use crate::flow::outliers::{flag_outliers, reason_text, OutlierResult, OutlierSettings};
 use crate::flow::FlowSample;
@@ -17,7 +17,8 @@ use crate::physics::estimators::{Distance, DistanceKind};
 use crate::physics::malmquist::{homogeneous_malmquist_factor, malmquist_factor, RadialProfile};
 use crate::physics::object::{evaluate_with, ObjectContext, ObjectInput};
 use crate::pipeline::{output_values, Derived, InputColumns, RowStatus, OUTPUT_COLUMNS};
-use crate::plan::{ColumnPlan, MalmquistChoice, MalmquistMethod};
+use crate::plan::ColumnPlan;
+use crate::settings::{BulkFlowChoice, GroupChoice, MalmquistChoice, MalmquistMethod};
 
 /// Columns a flowsift run adds besides [`OUTPUT_COLUMNS`] and `status`.
 pub const STAGE_COLUMNS: &[&str] = &[

@@ -1,0 +1,57 @@
+//! Conventions recorded with every output: luminosity-distance convention, length unit,
+//! intrinsic scatter.
+
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+use crate::physics::cosmology::LengthUnit;
+use crate::physics::estimators::DlConvention;
+use crate::physics::restframe::BoostMethod;
+
+use super::{ResolvedCosmology, ResolvedFrames};
+
+/// Conventions recorded with every output.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ConventionChoice {
+    /// Luminosity-distance convention (default `observed`).
+    pub dl_convention: Option<DlConvention>,
+    /// Unit of input and output distances (default `mpc`).
+    pub length_unit: Option<LengthUnit>,
+    /// Intrinsic velocity dispersion σ_* added to velocity errors, km/s (default 0).
+    pub sigma_star: Option<f64>,
+}
+
+impl ConventionChoice {
+    /// Overlay `other`'s set fields on this one.
+    pub fn overlay(&self, other: &ConventionChoice) -> ConventionChoice {
+        ConventionChoice {
+            dl_convention: other.dl_convention.or(self.dl_convention),
+            length_unit: other.length_unit.or(self.length_unit),
+            sigma_star: other.sigma_star.or(self.sigma_star),
+        }
+    }
+}
+
+/// Cautions printed with results, so that assumptions are never silent.
+pub fn cautions(
+    cosmology: &ResolvedCosmology,
+    frames: &ResolvedFrames,
+    convention: DlConvention,
+) -> Vec<String> {
+    let mut out = vec![
+        format!(
+            "Cosmological redshifts assume {} (H0 = {} km/s/Mpc, Ω_m = {}, Ω_de = {}, Ω_k = {:.3e}); peculiar velocities scale with this choice, most strongly through H0 against the distance zero point.",
+            cosmology.source, cosmology.params.h0, cosmology.params.omega_m, cosmology.params.omega_de, cosmology.omega_k
+        ),
+        format!(
+            "CMB frame from the '{}' apex ({:.2} km/s towards l = {}°, b = {}°).",
+            frames.cmb_apex.name, frames.cmb_apex.speed_km_s, frames.cmb_apex.glon_deg, frames.cmb_apex.glat_deg
+        ),
+        format!("Luminosity-distance convention: {} (see README, 'Conventions').", convention.name()),
+    ];
+    if frames.method == BoostMethod::LegacyAdditive {
+        out.push("Legacy additive frame correction (cz + v cos θ) in use: it omits the (1 + z) factor, an error ≈ v z.".into());
+    }
+    out
+}

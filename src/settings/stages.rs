@@ -1,0 +1,166 @@
+//! The sample stages as the user sets them (run-file sections or flags): Malmquist
+//! correction, groups, outliers, bulk flow, export. A section that is present turns its
+//! stage on.
+
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
+
+/// Which quantity the flow is fitted to.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum FitSpace {
+    /// Log-distance ratio η with κ = ∂η/∂v (default).
+    #[default]
+    Eta,
+    /// Radial peculiar velocity.
+    Velocity,
+}
+
+impl FitSpace {
+    pub fn name(self) -> &'static str {
+        match self {
+            FitSpace::Eta => "eta",
+            FitSpace::Velocity => "velocity",
+        }
+    }
+}
+
+/// Which Malmquist correction to apply to the distances before the velocities.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum MalmquistMethod {
+    /// E[r|d] = d exp(3.5 Δ²) (Lynden-Bell et al. 1988).
+    #[default]
+    Homogeneous,
+    /// The general form with a radial density profile n(r) from `profile`.
+    Profile,
+}
+
+/// Malmquist settings (run file `[malmquist]`, or flags).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct MalmquistChoice {
+    /// homogeneous (default) or profile.
+    pub method: Option<MalmquistMethod>,
+    /// CSV/TSV/Parquet/FITS table with columns `r` (Mpc, or the run's length unit) and `n`
+    /// (any normalisation); implies method = profile.
+    pub profile: Option<String>,
+}
+
+impl MalmquistChoice {
+    pub fn overlay(&self, o: &MalmquistChoice) -> MalmquistChoice {
+        MalmquistChoice {
+            method: o.method.or(self.method),
+            profile: o.profile.clone().or_else(|| self.profile.clone()),
+        }
+    }
+}
+
+/// Flow-sample export settings (run file `[export]`, or flags).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ExportChoice {
+    /// Where to write it (default: `<output stem>.flow.<ext>`).
+    pub output: Option<String>,
+    /// Keep rows flagged as outliers (default false; they carry `outlier = true`).
+    pub keep_outliers: Option<bool>,
+}
+
+impl ExportChoice {
+    pub fn overlay(&self, o: &ExportChoice) -> ExportChoice {
+        ExportChoice {
+            output: o.output.clone().or_else(|| self.output.clone()),
+            keep_outliers: o.keep_outliers.or(self.keep_outliers),
+        }
+    }
+}
+
+/// Group settings as the user gives them (run file `[groups]`, or flags).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct GroupChoice {
+    /// Column marking each group's central member (true/1); its redshift is the group's.
+    pub central_column: Option<String>,
+    /// Where to write the group table (default: `<output stem>.groups.<ext>` next to it).
+    pub output: Option<String>,
+}
+
+impl GroupChoice {
+    pub fn overlay(&self, o: &GroupChoice) -> GroupChoice {
+        GroupChoice {
+            central_column: o
+                .central_column
+                .clone()
+                .or_else(|| self.central_column.clone()),
+            output: o.output.clone().or_else(|| self.output.clone()),
+        }
+    }
+}
+
+/// Outlier settings as the user gives them (run file `[outliers]`, or flags).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct OutlierChoice {
+    /// Residual threshold in σ (default 3.5).
+    pub threshold: Option<f64>,
+    /// Number of neighbours for the consistency test (default 10; 0 turns it off).
+    pub neighbours: Option<usize>,
+    /// Neighbour-consistency threshold in σ (default 3.5).
+    pub neighbour_threshold: Option<f64>,
+    /// Flag |v_pec| above this, km/s (default: no bound).
+    pub max_speed: Option<f64>,
+    /// Flag η outside [low, high] (default [−0.6, 0.6], a factor 4 in distance).
+    pub eta_range: Option<[f64; 2]>,
+    /// Fit space for residuals: eta (default) or velocity.
+    pub space: Option<FitSpace>,
+    /// Intrinsic dispersion σ_*, km/s; absent: fitted.
+    pub sigma_star: Option<f64>,
+}
+
+impl OutlierChoice {
+    pub fn overlay(&self, o: &OutlierChoice) -> OutlierChoice {
+        OutlierChoice {
+            threshold: o.threshold.or(self.threshold),
+            neighbours: o.neighbours.or(self.neighbours),
+            neighbour_threshold: o.neighbour_threshold.or(self.neighbour_threshold),
+            max_speed: o.max_speed.or(self.max_speed),
+            eta_range: o.eta_range.or(self.eta_range),
+            space: o.space.or(self.space),
+            sigma_star: o.sigma_star.or(self.sigma_star),
+        }
+    }
+}
+
+/// Bulk-flow settings as the user gives them (run file `[bulk_flow]`, or flags).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct BulkFlowChoice {
+    /// Fit space: eta (default) or velocity.
+    pub space: Option<FitSpace>,
+    /// Intrinsic dispersion σ_*, km/s; absent: fitted.
+    pub sigma_star: Option<f64>,
+    /// Leave out rows flagged as outliers (default true).
+    pub skip_outliers: Option<bool>,
+    /// Compute the ΛCDM expectation for the sample's window (default true).
+    pub lcdm: Option<bool>,
+    /// σ8 of the linear power spectrum (default: Planck 2018).
+    pub sigma8: Option<f64>,
+    /// Baryon density Ω_b (default: Planck 2018).
+    pub omega_b: Option<f64>,
+    /// Spectral index n_s (default: Planck 2018).
+    pub n_s: Option<f64>,
+}
+
+impl BulkFlowChoice {
+    pub fn overlay(&self, o: &BulkFlowChoice) -> BulkFlowChoice {
+        BulkFlowChoice {
+            space: o.space.or(self.space),
+            sigma_star: o.sigma_star.or(self.sigma_star),
+            skip_outliers: o.skip_outliers.or(self.skip_outliers),
+            lcdm: o.lcdm.or(self.lcdm),
+            sigma8: o.sigma8.or(self.sigma8),
+            omega_b: o.omega_b.or(self.omega_b),
+            n_s: o.n_s.or(self.n_s),
+        }
+    }
+}
