@@ -81,8 +81,8 @@ use polars::prelude::*;
 
 use super::cfitsio::{ok, status_text, FitsHandle};
 use super::{
-    read_table, set_readable, write_table, CatalogueError, ColumnMeta, Format, Provenance,
-    ReadOptions, Table, WriteOptions,
+    read_table, write_table, CatalogueError, ColumnMeta, Format, Provenance, ReadOptions, Table,
+    WriteOptions,
 };
 use crate::physics::cosmology::LengthUnit;
 use crate::physics::field::{FieldAxes, VelocityGrid};
@@ -232,43 +232,16 @@ pub fn write_field_fits(path: &Path, grid: &VelocityGrid) -> Result<(), Catalogu
     if path.is_dir() {
         return Err(err("is a folder".into()));
     }
-    let dir = path
-        .parent()
-        .filter(|p| !p.as_os_str().is_empty())
-        .unwrap_or(Path::new("."));
-    if !dir.is_dir() {
-        return Err(err(format!("folder {} does not exist", dir.display())));
-    }
-    let name = path
+    let compress = path
         .file_name()
-        .map(|n| n.to_string_lossy().to_string())
-        .unwrap_or_default();
-    let compress = name.to_ascii_lowercase().ends_with(".gz");
-    // Reserve a unique name, then let cfitsio create the file itself (it refuses to write
-    // over an existing one).
-    let tmp = tempfile::Builder::new()
-        .prefix(".flowsift-partial-")
-        .suffix(&format!("-{name}"))
-        .tempfile_in(dir)
-        .map_err(|e| err(format!("cannot create a temporary file: {e}")))?;
-    let tmp_path = tmp.path().to_path_buf();
-    drop(tmp);
-    std::fs::remove_file(&tmp_path).ok();
-
-    let result = FitsHandle::create(&tmp_path, compress).and_then(|file| {
-        write_image_form(&file, grid)?;
-        file.close()
-            .map_err(|s| format!("cannot finish writing the file: {}", status_text(s)))
-    });
-    if let Err(message) = result {
-        std::fs::remove_file(&tmp_path).ok();
-        let message = message.replace(&tmp_path.display().to_string(), &path.display().to_string());
-        return Err(err(message));
-    }
-    set_readable(&tmp_path);
-    std::fs::rename(&tmp_path, path).map_err(|e| {
-        std::fs::remove_file(&tmp_path).ok();
-        err(format!("cannot move the finished file into place: {e}"))
+        .map(|n| n.to_string_lossy().to_ascii_lowercase().ends_with(".gz"))
+        .unwrap_or(false);
+    super::atomic::write_via_path(path, |tmp| {
+        FitsHandle::create(tmp, compress).and_then(|file| {
+            write_image_form(&file, grid)?;
+            file.close()
+                .map_err(|s| format!("cannot finish writing the file: {}", status_text(s)))
+        })
     })
 }
 
@@ -369,28 +342,16 @@ fn parse_axes(text: &str) -> Option<FieldAxes> {
     }
 }
 
-fn normalise_unit(text: &str) -> String {
-    text.split_whitespace()
-        .collect::<Vec<_>>()
-        .join(" ")
-        .to_ascii_lowercase()
-}
-
 fn parse_length_unit(text: &str) -> Option<LengthUnit> {
-    match normalise_unit(text).as_str() {
-        "mpc" => Some(LengthUnit::Mpc),
-        "mpc/h" | "h-1 mpc" | "h^-1 mpc" | "mpc h-1" | "mpc h^-1" | "h-1.mpc" | "mpc.h-1" => {
-            Some(LengthUnit::MpcOverH)
-        }
+    match super::units::parse_unit(text) {
+        super::units::Unit::Mpc => Some(LengthUnit::Mpc),
+        super::units::Unit::MpcOverH => Some(LengthUnit::MpcOverH),
         _ => None,
     }
 }
 
 fn is_km_s(text: &str) -> bool {
-    matches!(
-        normalise_unit(text).as_str(),
-        "km/s" | "km s-1" | "km.s-1" | "km s^-1" | "km.s**-1" | "km s**-1"
-    )
+    super::units::parse_unit(text) == super::units::Unit::KmPerS
 }
 
 // ---------------------------------------------------------------------------------------------

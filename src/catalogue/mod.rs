@@ -1,9 +1,14 @@
 //! Catalogue edges: reading FITS, CSV/TSV and Parquet tables into columns, and writing them
 //! back with units, UCDs and provenance. Nothing here does physics.
 
+pub mod atomic;
 mod cfitsio;
+pub mod clock;
 pub mod field_io;
 pub mod fits;
+pub mod provenance;
+pub mod record;
+pub mod units;
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -28,11 +33,8 @@ pub struct Table {
     pub meta: BTreeMap<String, ColumnMeta>,
 }
 
-/// Ordered key/value provenance records written with every output.
-#[derive(Debug, Clone, Default, PartialEq, serde::Serialize)]
-pub struct Provenance {
-    pub entries: Vec<(String, String)>,
-}
+pub use provenance::{read_provenance, sidecar_path, FoundProvenance, Provenance};
+pub use record::{read_record, RunRecord};
 
 /// What can go wrong at the edges, always naming the file.
 #[derive(Debug, Error)]
@@ -146,13 +148,6 @@ pub struct WriteOptions {
     pub protected: Vec<PathBuf>,
 }
 
-/// The sidecar provenance file written next to a CSV/TSV output.
-pub fn sidecar_path(output: &Path) -> PathBuf {
-    let mut s = output.as_os_str().to_owned();
-    s.push(".provenance.json");
-    PathBuf::from(s)
-}
-
 /// Write a table atomically: into a temporary file in the output's folder, then renamed
 /// over the destination, so that no reader ever sees a partial file. Refuses to write over
 /// an input, or over an existing file without `force`. Files are not forced to disk
@@ -184,88 +179,30 @@ pub fn write_table_with_text(
         )
     })?;
     check_destination(path, options)?;
-    let dir = path
-        .parent()
-        .filter(|p| !p.as_os_str().is_empty())
-        .unwrap_or(Path::new("."));
-    if !dir.is_dir() {
-        return Err(CatalogueError::write(
-            path,
-            format!("folder {} does not exist", dir.display()),
-        ));
-    }
-    // Keep the extension so that writers that look at it (cfitsio's .gz) behave.
-    let name = path
-        .file_name()
-        .map(|n| n.to_string_lossy().to_string())
-        .unwrap_or_default();
-    let tmp = tempfile::Builder::new()
-        .prefix(".flowsift-partial-")
-        .suffix(&format!("-{name}"))
-        .tempfile_in(dir)
-        .map_err(|e| CatalogueError::write(path, format!("cannot create a temporary file: {e}")))?;
-    let tmp_path = tmp.path().to_path_buf();
-    // cfitsio refuses to create over an existing file; let it create the file itself.
-    if format == Format::Fits {
-        drop(tmp);
-        std::fs::remove_file(&tmp_path).ok();
-        let result = fits::write_fits(&tmp_path, table, provenance);
-        if let Err(e) = result {
-            std::fs::remove_file(&tmp_path).ok();
-            // Name the destination, not the temporary file, in the message.
-            let message = match e {
-                CatalogueError::Read { message, .. } | CatalogueError::Write { message, .. } => {
-                    message.replace(&tmp_path.display().to_string(), &path.display().to_string())
-                }
-            };
-            return Err(CatalogueError::write(path, message));
-        }
-        set_readable(&tmp_path);
-        std::fs::rename(&tmp_path, path).map_err(|e| {
-            std::fs::remove_file(&tmp_path).ok();
-            CatalogueError::write(
-                path,
-                format!("cannot move the finished file into place: {e}"),
-            )
-        })?;
-        return Ok(());
-    }
     match format {
-        Format::Csv => delimited::write_delimited_with_text(tmp.as_file(), table, b',', text)
-            .map_err(|e| CatalogueError::write(path, e))?,
-        Format::Tsv => delimited::write_delimited_with_text(tmp.as_file(), table, b'\t', text)
-            .map_err(|e| CatalogueError::write(path, e))?,
-        Format::Parquet => parquet::write_parquet(tmp.as_file(), table, provenance)
-            .map_err(|e| CatalogueError::write(path, e))?,
-        Format::Fits => unreachable!(),
+        // cfitsio creates its file by name.
+        Format::Fits => atomic::write_via_path(path, |tmp| {
+            fits::write_fits(tmp, table, provenance).map_err(|e| match e {
+                CatalogueError::Read { message, .. } | CatalogueError::Write { message, .. } => {
+                    message
+                }
+            })
+        }),
+        Format::Csv | Format::Tsv => {
+            let sep = if format == Format::Csv { b',' } else { b'\t' };
+            atomic::write_via_file(path, |f| {
+                delimited::write_delimited_with_text(f, table, sep, text)
+            })?;
+            write_json_atomically(
+                &sidecar_path(path),
+                &provenance::sidecar(table, provenance),
+                true,
+            )
+        }
+        Format::Parquet => {
+            atomic::write_via_file(path, |f| parquet::write_parquet(f, table, provenance))
+        }
     }
-    set_readable(tmp.path());
-    if matches!(format, Format::Csv | Format::Tsv) {
-        write_json_atomically(
-            &sidecar_path(path),
-            &sidecar(table, provenance),
-            options.force,
-        )?;
-    }
-    tmp.persist(path).map_err(|e| {
-        CatalogueError::write(
-            path,
-            format!("cannot move the finished file into place: {}", e.error),
-        )
-    })?;
-    Ok(())
-}
-
-/// Temporary files are created private (0600); a finished catalogue gets the usual
-/// permissions of a new file (0666 less the process umask, here taken as 022: 0644).
-fn set_readable(path: &Path) {
-    #[cfg(unix)]
-    {
-        use std::os::unix::fs::PermissionsExt;
-        std::fs::set_permissions(path, std::fs::Permissions::from_mode(0o644)).ok();
-    }
-    #[cfg(not(unix))]
-    let _ = path;
 }
 
 fn same_file(a: &Path, b: &Path) -> bool {
@@ -291,17 +228,7 @@ fn check_destination(path: &Path, options: &WriteOptions) -> Result<(), Catalogu
     Ok(())
 }
 
-/// The sidecar's content: provenance plus per-column units and UCDs.
-fn sidecar(table: &Table, provenance: &Provenance) -> serde_json::Value {
-    let prov: serde_json::Map<String, serde_json::Value> = provenance
-        .entries
-        .iter()
-        .map(|(k, v)| (k.clone(), serde_json::Value::String(v.clone())))
-        .collect();
-    serde_json::json!({ "provenance": prov, "columns": table.meta })
-}
-
-/// Write JSON atomically (temporary file and rename).
+/// Write JSON atomically (temporary file and rename); an existing file needs `force`.
 pub fn write_json_atomically(
     path: &Path,
     value: &serde_json::Value,
@@ -313,25 +240,8 @@ pub fn write_json_atomically(
             "file exists; pass --force to replace it",
         ));
     }
-    let dir = path
-        .parent()
-        .filter(|p| !p.as_os_str().is_empty())
-        .unwrap_or(Path::new("."));
-    let mut tmp = tempfile::Builder::new()
-        .prefix(".flowsift-partial-")
-        .tempfile_in(dir)
-        .map_err(|e| CatalogueError::write(path, format!("cannot create a temporary file: {e}")))?;
-    use std::io::Write;
-    serde_json::to_writer_pretty(&mut tmp, value)
+    let mut text = serde_json::to_string_pretty(value)
         .map_err(|e| CatalogueError::write(path, e.to_string()))?;
-    tmp.write_all(b"\n")
-        .map_err(|e| CatalogueError::write(path, e.to_string()))?;
-    set_readable(tmp.path());
-    tmp.persist(path).map_err(|e| {
-        CatalogueError::write(
-            path,
-            format!("cannot move the finished file into place: {}", e.error),
-        )
-    })?;
-    Ok(())
+    text.push('\n');
+    atomic::write_bytes(path, text.as_bytes())
 }

@@ -8,7 +8,8 @@ use clap::Args;
 
 use flowsift::catalogue::{read_table, ReadOptions, Table};
 use flowsift::mock::MockSpec;
-use flowsift::run::{run_velocities, Stage, VelocityRequest};
+use flowsift::plan::{plan_velocities, VelocityOrder};
+use flowsift::run::{run_velocities, Stage};
 use flowsift::settings::ConventionChoice;
 use flowsift::settings::{ErrorChoice, RunConfig};
 
@@ -77,18 +78,21 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
     let mut last = None;
     for name in outputs {
         let out = a.out_dir.join(name);
-        let summary = run_velocities(&VelocityRequest {
+        let summary = plan_velocities(VelocityOrder {
             input: data.clone(),
             output: out.clone(),
-            config: config.clone(),
+            run_file: None,
+            flags: config.clone(),
             force: true,
+            override_input_settings: false,
             command_line: format!(
                 "flowsift demo (velocities {} -o {} --monte-carlo 500 --seed 20261201)",
                 data.display(),
                 out.display()
             ),
-            progress: &report,
-        });
+            step: "velocities".into(),
+        })
+        .and_then(|plan| run_velocities(&plan, &report));
         match summary {
             Ok(s) => {
                 last = Some(s);

@@ -3,10 +3,9 @@
 
 use clap::{Args, ValueEnum};
 
-use flowsift::physics::cosmology::LengthUnit;
-use flowsift::physics::estimators::DlConvention;
-use flowsift::physics::restframe::BoostMethod;
-use flowsift::settings::{ConventionChoice, CosmologyChoice, FrameChoice};
+use flowsift::settings::{
+    BoostMethod, ConventionChoice, CosmologyChoice, DlConvention, FrameChoice, LengthUnit,
+};
 
 /// Cosmology flags.
 #[derive(Debug, Clone, Default, Args)]

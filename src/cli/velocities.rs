@@ -9,11 +9,11 @@ use anyhow::anyhow;
 use clap::{Args, ValueEnum};
 use indicatif::{ProgressBar, ProgressStyle};
 
-use flowsift::physics::estimators::DistanceKind;
-use flowsift::run::{run_velocities, RunSummary, Stage, VelocityRequest};
+use flowsift::plan::{plan_velocities, VelocityOrder};
+use flowsift::run::{run_velocities, RunSummary, Stage};
 use flowsift::settings::{
-    AngleUnit, BulkFlowChoice, ColumnChoice, ErrorChoice, ExportChoice, GroupChoice, InputChoice,
-    MalmquistChoice, OutlierChoice, RedshiftUnit, RunConfig,
+    AngleUnit, BulkFlowChoice, ColumnChoice, DistanceKind, ErrorChoice, ExportChoice, GroupChoice,
+    InputChoice, MalmquistChoice, OutlierChoice, RedshiftUnit, RunConfig,
 };
 
 use super::options::{BulkFlowFlags, ConventionFlags, CosmologyFlags, FrameFlags, OutlierFlags};
@@ -102,6 +102,10 @@ pub struct VelocitiesArgs {
     /// Write the flow-sample export to this file.
     #[arg(long, value_name = "FILE", help_heading = "Sample stages")]
     pub export: Option<String>,
+    /// Use flags or run-file keys that contradict the settings recorded with a flowsift
+    /// input (cosmology, rest frame, conventions, columns); the output records both.
+    #[arg(long = "override-input-settings")]
+    pub override_input_settings: bool,
     /// Print the summary as JSON.
     #[arg(long)]
     pub json: bool,
@@ -255,18 +259,6 @@ impl ColumnFlags {
     }
 }
 
-/// Merge the run file (if any) with the flags, flags winning.
-pub fn merged_config(config: &Option<PathBuf>, flags: RunConfig) -> anyhow::Result<RunConfig> {
-    let file = match config {
-        Some(p) => {
-            let text = std::fs::read_to_string(p).map_err(|e| anyhow!("{}: {e}", p.display()))?;
-            RunConfig::from_toml(&text, &p.display().to_string()).map_err(|e| anyhow!(e))?
-        }
-        None => RunConfig::default(),
-    };
-    Ok(file.overlay(&flags))
-}
-
 /// A progress bar on a terminal, nothing otherwise.
 pub struct Progress {
     bars: Mutex<Vec<(Stage, ProgressBar)>>,
@@ -317,29 +309,31 @@ impl Progress {
 }
 
 pub fn run(a: VelocitiesArgs) -> anyhow::Result<()> {
-    let config = merged_config(&a.config, a.flags_config())?;
-    run_with(&a, config, &a.output)
+    run_with(&a, a.flags_config(), &a.output, "velocities")
 }
 
-/// Run with a merged configuration, writing the main output to `output`.
+/// Plan and run with these flags, writing the main output to `output`.
 pub fn run_with(
     a: &VelocitiesArgs,
-    config: RunConfig,
+    flags: RunConfig,
     output: &std::path::Path,
+    step: &str,
 ) -> anyhow::Result<()> {
+    let plan = plan_velocities(VelocityOrder {
+        input: a.input.clone(),
+        output: output.to_path_buf(),
+        run_file: a.config.clone(),
+        flags,
+        force: a.force,
+        override_input_settings: a.override_input_settings,
+        command_line: std::env::args().collect::<Vec<_>>().join(" "),
+        step: step.to_string(),
+    })
+    .map_err(|e| anyhow!(e))?;
     // The row count is known only after reading; the bar sizes itself on first use.
     let progress = Progress::new(0);
     let report = |s: Stage, k: usize| progress.tick(s, k);
-    let command_line = std::env::args().collect::<Vec<_>>().join(" ");
-    let summary = run_velocities(&VelocityRequest {
-        input: a.input.clone(),
-        output: output.to_path_buf(),
-        config,
-        force: a.force,
-        command_line,
-        progress: &report,
-    })
-    .map_err(|e| anyhow!(e))?;
+    let summary = run_velocities(&plan, &report).map_err(|e| anyhow!(e))?;
     progress.finish();
     print_summary(&summary, a.json)
 }

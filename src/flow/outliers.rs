@@ -28,13 +28,13 @@ use crate::settings::OutlierChoice;
 impl OutlierSettings {
     /// Resolved settings, checked.
     pub fn from_choice(choice: &OutlierChoice) -> Result<OutlierSettings, String> {
-        let c = choice;
+        let c = &choice.filled();
         let s = OutlierSettings {
-            threshold: c.threshold.unwrap_or(3.5),
-            neighbours: c.neighbours.unwrap_or(10),
-            neighbour_threshold: c.neighbour_threshold.unwrap_or(3.5),
+            threshold: c.threshold.unwrap_or_default(),
+            neighbours: c.neighbours.unwrap_or_default(),
+            neighbour_threshold: c.neighbour_threshold.unwrap_or_default(),
             max_speed: c.max_speed,
-            eta_range: c.eta_range.unwrap_or([-0.6, 0.6]),
+            eta_range: c.eta_range.unwrap_or_default(),
             space: c.space.unwrap_or_default(),
             sigma_star: c.sigma_star.map(SigmaStar::Fixed).unwrap_or(SigmaStar::Fit),
         };

@@ -36,6 +36,43 @@ pub struct ColumnPlan {
 }
 
 impl ColumnPlan {
+    /// The mapping as a column choice with every role named (what a record keeps, and what
+    /// a later step on the output starts from).
+    pub fn as_choice(&self) -> ColumnChoice {
+        let name = |r: &Option<Resolved>| r.as_ref().map(|r| r.column.clone());
+        ColumnChoice {
+            ra: Some(self.ra.column.clone()),
+            dec: Some(self.dec.column.clone()),
+            z: Some(self.z.column.clone()),
+            z_unit: Some(self.z_unit),
+            z_err: name(&self.z_err),
+            distance: Some(self.distance.column.clone()),
+            distance_kind: Some(self.distance_kind),
+            distance_err: name(&self.distance_err),
+            group_id: name(&self.group_id),
+            angle_unit: self.angle_unit,
+        }
+    }
+
+    /// How each role was found, by role.
+    pub fn sources(&self) -> std::collections::BTreeMap<String, String> {
+        let mut m = std::collections::BTreeMap::new();
+        for (role, r) in [
+            ("ra", Some(&self.ra)),
+            ("dec", Some(&self.dec)),
+            ("z", Some(&self.z)),
+            ("z_err", self.z_err.as_ref()),
+            ("distance", Some(&self.distance)),
+            ("distance_err", self.distance_err.as_ref()),
+            ("group_id", self.group_id.as_ref()),
+        ] {
+            if let Some(r) = r {
+                m.insert(role.to_string(), format!("{} ({})", r.column, r.found_by));
+            }
+        }
+        m
+    }
+
     /// Lines for the terminal: role → column (how found).
     pub fn describe(&self) -> Vec<String> {
         let mut out = vec![];

@@ -1,8 +1,18 @@
-//! From raw choices (run file and flags, merged, flags winning) to a validated run plan:
-//! cosmology built, apex chosen, columns and units resolved against the file's header.
-//! Every conflict is reported at once; the pipeline takes only the plan.
+//! One resolver for every command: flags and run file merged, settled against the record of
+//! the input (when it is a flowsift output), cosmology, frames and conventions resolved,
+//! columns and units resolved against the file's header, every file checked — before any
+//! work, with every conflict reported at once. The run layer takes only plans.
 
 pub mod columns;
+pub mod common;
+pub mod inherit;
+pub mod paths;
+pub mod run_file;
+pub mod stage;
+pub mod velocities;
 
-pub use crate::settings::cautions;
 pub use columns::{ColumnPlan, Resolved};
+pub use common::Shared;
+pub use paths::Files;
+pub use stage::{plan_stage, StageOrder, StagePlan};
+pub use velocities::{plan_velocities, sibling_json, sibling_path, VelocityOrder, VelocityPlan};

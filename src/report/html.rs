@@ -7,9 +7,7 @@ use serde_json::Value;
 
 use super::data::{self, is_ok, numbers, outlier_summary, status_counts};
 use super::Figure;
-use crate::catalogue::fits::read_fits_provenance;
-use crate::catalogue::parquet::{read_parquet_metadata, COLUMNS_KEY};
-use crate::catalogue::{sidecar_path, Format, Table};
+use crate::catalogue::Table;
 
 /// Write the run report for `table` (read from `input`) to `out`, atomically: provenance,
 /// settings and conventions, counts per status, outliers per reason, the bulk flow and its ΛCDM
@@ -124,73 +122,12 @@ fn esc(s: &str) -> String {
     o
 }
 
-/// Provenance entries of a flowsift output, wherever its format keeps them, and a note saying
-/// where they came from (or why there are none).
+/// Provenance entries of a flowsift output, through the catalogue layer's one reader, and a
+/// note saying where they came from (or why there are none).
 fn read_provenance(input: &Path) -> (Vec<(String, String)>, String) {
-    let format = match Format::from_path(input) {
-        Ok(f) => f,
-        Err(e) => return (Vec::new(), format!("no provenance read: {e}")),
-    };
-    match format {
-        Format::Fits => match read_fits_provenance(input, None) {
-            Ok(p) if !p.entries.is_empty() => {
-                (p.entries, "FITS header cards PRVKnnn/PRVVnnn".to_string())
-            }
-            Ok(_) => (Vec::new(), "the FITS header has no provenance cards".into()),
-            Err(e) => (Vec::new(), format!("provenance not readable: {e}")),
-        },
-        Format::Csv | Format::Tsv => {
-            let side = sidecar_path(input);
-            let text = match std::fs::read_to_string(&side) {
-                Ok(t) => t,
-                Err(e) => {
-                    return (
-                        Vec::new(),
-                        format!("no provenance sidecar {} ({e})", side.display()),
-                    )
-                }
-            };
-            match serde_json::from_str::<Value>(&text) {
-                Ok(v) => {
-                    let entries = v
-                        .get("provenance")
-                        .and_then(Value::as_object)
-                        .map(|m| {
-                            m.iter()
-                                .map(|(k, v)| {
-                                    let s = match v {
-                                        Value::String(s) => s.clone(),
-                                        other => other.to_string(),
-                                    };
-                                    (k.clone(), s)
-                                })
-                                .collect()
-                        })
-                        .unwrap_or_default();
-                    (entries, format!("sidecar {}", side.display()))
-                }
-                Err(e) => (
-                    Vec::new(),
-                    format!("sidecar {} is not JSON: {e}", side.display()),
-                ),
-            }
-        }
-        Format::Parquet => match read_parquet_metadata(input) {
-            Ok(kv) => {
-                let entries: Vec<(String, String)> = kv
-                    .into_iter()
-                    .filter(|(k, _)| k != COLUMNS_KEY)
-                    .filter_map(|(k, v)| k.strip_prefix("flowsift.").map(|k| (k.to_string(), v)))
-                    .collect();
-                let note = if entries.is_empty() {
-                    "the Parquet key-value metadata has no flowsift entries".to_string()
-                } else {
-                    "Parquet key-value metadata (flowsift.*)".to_string()
-                };
-                (entries, note)
-            }
-            Err(e) => (Vec::new(), format!("provenance not readable: {e}")),
-        },
+    match crate::catalogue::read_provenance(input, None) {
+        Ok(found) => (found.provenance.entries, found.origin),
+        Err(e) => (Vec::new(), format!("provenance not readable: {e}")),
     }
 }
 
@@ -744,28 +681,11 @@ fn base64(bytes: &[u8]) -> String {
 }
 
 /// Now as an ISO 8601 UTC timestamp.
+/// The report's date: the catalogue clock's UTC timestamp, spelled for people.
 fn utc_now() -> String {
-    let secs = std::time::SystemTime::now()
-        .duration_since(std::time::UNIX_EPOCH)
-        .map(|d| d.as_secs() as i64)
-        .unwrap_or(0);
-    let (days, rem) = (secs.div_euclid(86_400), secs.rem_euclid(86_400));
-    // Civil date from days since 1970-01-01 (proleptic Gregorian calendar).
-    let z = days + 719_468;
-    let era = z.div_euclid(146_097);
-    let doe = z - era * 146_097;
-    let yoe = (doe - doe / 1460 + doe / 36_524 - doe / 146_096) / 365;
-    let doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
-    let mp = (5 * doy + 2) / 153;
-    let d = doy - (153 * mp + 2) / 5 + 1;
-    let m = if mp < 10 { mp + 3 } else { mp - 9 };
-    let y = yoe + era * 400 + if m <= 2 { 1 } else { 0 };
-    format!(
-        "{y:04}-{m:02}-{d:02} {:02}:{:02}:{:02} UTC",
-        rem / 3600,
-        rem % 3600 / 60,
-        rem % 60
-    )
+    crate::catalogue::clock::now_utc()
+        .replace('T', " ")
+        .replace('Z', " UTC")
 }
 
 #[cfg(test)]

@@ -229,19 +229,7 @@ pub(crate) fn set_readable(path: &Path) {
     let _ = path;
 }
 
-/// Write `bytes` to `path` through a temporary file in the same folder and a rename.
+/// Write `bytes` to `path` atomically (the catalogue layer's one writer).
 pub(crate) fn atomic_write(path: &Path, bytes: &[u8]) -> Result<(), String> {
-    use std::io::Write;
-    let dir = folder_of(path);
-    let mut tmp = tempfile::Builder::new()
-        .prefix(".flowsift-partial-")
-        .tempfile_in(dir)
-        .map_err(|e| format!("cannot create a temporary file in {}: {e}", dir.display()))?;
-    tmp.write_all(bytes)
-        .and_then(|_| tmp.as_file().sync_all())
-        .map_err(|e| format!("cannot write: {e}"))?;
-    set_readable(tmp.path());
-    tmp.persist(path)
-        .map_err(|e| format!("cannot move the finished file into place: {}", e.error))?;
-    Ok(())
+    crate::catalogue::atomic::write_bytes(path, bytes).map_err(|e| e.to_string())
 }

@@ -404,20 +404,19 @@ pub fn bulk_flow_of(
     )
 }
 
-/// `<stem>.<tag>.<ext>` next to `output` (the extension kept whole, e.g. `.fits.gz`).
-pub fn sibling_path(output: &Path, tag: &str) -> std::path::PathBuf {
-    let name = output
-        .file_name()
-        .map(|n| n.to_string_lossy().to_string())
-        .unwrap_or_default();
-    let lower = name.to_ascii_lowercase();
-    let ext_len = [
-        ".fits.gz", ".fit.gz", ".fits", ".fit", ".csv", ".tsv", ".parquet", ".pq",
-    ]
-    .iter()
-    .find(|e| lower.ends_with(*e))
-    .map(|e| e.len())
-    .unwrap_or(0);
-    let (stem, ext) = name.split_at(name.len() - ext_len);
-    output.with_file_name(format!("{stem}.{tag}{ext}"))
+/// Give each member row the index of its group (`group_index`).
+pub fn add_group_index(table: &mut Table, groups: &Groups) -> Result<(), String> {
+    let idx: Vec<i64> = groups.group_of.iter().map(|x| *x as i64).collect();
+    table.frame = table
+        .frame
+        .hstack(&[Column::new("group_index".into(), idx)])
+        .map_err(|e| e.to_string())?;
+    table.meta.insert(
+        "group_index".into(),
+        ColumnMeta {
+            unit: None,
+            ucd: Some("meta.id.parent".into()),
+        },
+    );
+    Ok(())
 }

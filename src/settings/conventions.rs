@@ -33,6 +33,17 @@ impl ConventionChoice {
     }
 }
 
+impl ConventionChoice {
+    /// Every convention as the value used (for records).
+    pub fn filled(&self) -> ConventionChoice {
+        ConventionChoice {
+            dl_convention: Some(self.dl_convention.unwrap_or_default()),
+            length_unit: Some(self.length_unit.unwrap_or_default()),
+            sigma_star: Some(self.sigma_star.unwrap_or(0.0)),
+        }
+    }
+}
+
 /// Cautions printed with results, so that assumptions are never silent.
 pub fn cautions(
     cosmology: &ResolvedCosmology,

@@ -89,3 +89,19 @@ impl ResolvedCosmology {
         Ok(c)
     }
 }
+
+impl CosmologyChoice {
+    /// The choice with every parameter written out as the value used (for records).
+    pub fn filled(&self) -> Result<CosmologyChoice, String> {
+        let r = self.resolve()?;
+        Ok(CosmologyChoice {
+            preset: Some(self.preset.clone().unwrap_or_else(|| "common".into())),
+            h0: Some(r.params.h0),
+            omega_m: Some(r.params.omega_m),
+            omega_de: Some(r.params.omega_de),
+            omega_r: Some(r.params.omega_r),
+            w0: Some(r.params.w0),
+            wa: Some(r.params.wa),
+        })
+    }
+}

@@ -88,3 +88,17 @@ impl FrameChoice {
         })
     }
 }
+
+impl FrameChoice {
+    /// The choice with every apex named and the boost stated (for records).
+    pub fn filled(&self) -> Result<FrameChoice, String> {
+        let r = self.resolve()?;
+        Ok(FrameChoice {
+            dipole: self.apex.is_none().then(|| r.cmb_apex.name.clone()),
+            apex: self.apex,
+            boost: Some(r.method),
+            local_group: Some(r.local_group_apex.name.clone()),
+            galactic_rest: Some(r.galactic_rest_apex.name.clone()),
+        })
+    }
+}

@@ -12,6 +12,10 @@ mod stages;
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
+/// The physics' own names for what a user chooses (the vocabulary of flags and run files).
+pub use crate::physics::cosmology::LengthUnit;
+pub use crate::physics::estimators::{DistanceKind, DlConvention};
+pub use crate::physics::restframe::BoostMethod;
 pub use columns::{AngleUnit, ColumnChoice, RedshiftUnit};
 pub use conventions::{cautions, ConventionChoice};
 pub use cosmology::{CosmologyChoice, ResolvedCosmology};

@@ -164,3 +164,64 @@ impl BulkFlowChoice {
         }
     }
 }
+
+// Every default of the stages, written down once; `filled` turns a section into the values a
+// run uses, which is what its record keeps.
+
+impl MalmquistChoice {
+    /// The method used: `profile` when a profile table is named.
+    pub fn filled(&self) -> MalmquistChoice {
+        MalmquistChoice {
+            method: Some(if self.profile.is_some() {
+                MalmquistMethod::Profile
+            } else {
+                self.method.unwrap_or_default()
+            }),
+            profile: self.profile.clone(),
+        }
+    }
+}
+
+impl OutlierChoice {
+    /// Defaults: threshold 3.5 σ, 10 neighbours at 3.5 σ, no speed limit (`max_speed`
+    /// absent), η in [−0.6, 0.6], residuals in η, σ_* fitted (`sigma_star` absent).
+    pub fn filled(&self) -> OutlierChoice {
+        OutlierChoice {
+            threshold: Some(self.threshold.unwrap_or(3.5)),
+            neighbours: Some(self.neighbours.unwrap_or(10)),
+            neighbour_threshold: Some(self.neighbour_threshold.unwrap_or(3.5)),
+            max_speed: self.max_speed,
+            eta_range: Some(self.eta_range.unwrap_or([-0.6, 0.6])),
+            space: Some(self.space.unwrap_or_default()),
+            sigma_star: self.sigma_star,
+        }
+    }
+}
+
+impl BulkFlowChoice {
+    /// Defaults: η space, σ_* fitted (`sigma_star` absent), outliers left out, the ΛCDM
+    /// expectation on, σ8, Ω_b and n_s of Planck 2018 (Planck Collaboration VI 2020,
+    /// Table 2, TT,TE,EE+lowE+lensing+BAO; `physics::power::PowerParams::planck2018`).
+    pub fn filled(&self) -> BulkFlowChoice {
+        let p = crate::physics::power::PowerParams::planck2018();
+        BulkFlowChoice {
+            space: Some(self.space.unwrap_or_default()),
+            sigma_star: self.sigma_star,
+            skip_outliers: Some(self.skip_outliers.unwrap_or(true)),
+            lcdm: Some(self.lcdm.unwrap_or(true)),
+            sigma8: Some(self.sigma8.unwrap_or(p.sigma8)),
+            omega_b: Some(self.omega_b.unwrap_or(p.omega_b)),
+            n_s: Some(self.n_s.unwrap_or(p.n_s)),
+        }
+    }
+}
+
+impl ExportChoice {
+    /// Defaults: outliers left out; `output` as resolved by the plan.
+    pub fn filled(&self) -> ExportChoice {
+        ExportChoice {
+            output: self.output.clone(),
+            keep_outliers: Some(self.keep_outliers.unwrap_or(false)),
+        }
+    }
+}

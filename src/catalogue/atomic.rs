@@ -1,0 +1,107 @@
+//! The one way flowsift writes a file — tables, JSON, figures, reports, run files: into a
+//! temporary file in the destination's folder, then renamed over the destination, so that no
+//! reader ever sees a partial file. Temporary files are named `.flowsift-partial-…-NAME`, so a
+//! file left by a killed process says what it was. Nothing is forced to disk (no fsync): a
+//! machine crash right after a run can lose the new output, which the run (seeded,
+//! reproducible) can write again.
+
+use std::fs::File;
+use std::path::{Path, PathBuf};
+
+use super::CatalogueError;
+
+/// Prefix of every temporary file flowsift creates next to an output.
+pub const PARTIAL_PREFIX: &str = ".flowsift-partial-";
+
+/// The folder a file is in ("." for a bare name).
+pub fn folder_of(path: &Path) -> &Path {
+    path.parent()
+        .filter(|p| !p.as_os_str().is_empty())
+        .unwrap_or(Path::new("."))
+}
+
+fn temporary(path: &Path) -> Result<tempfile::NamedTempFile, CatalogueError> {
+    let dir = folder_of(path);
+    if !dir.is_dir() {
+        return Err(CatalogueError::write(
+            path,
+            format!("folder {} does not exist", dir.display()),
+        ));
+    }
+    // Keep the whole name (and so the extension) so that writers that look at it behave
+    // (cfitsio's .gz, the image encoder's .png).
+    let name = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
+    tempfile::Builder::new()
+        .prefix(PARTIAL_PREFIX)
+        .suffix(&format!("-{name}"))
+        .tempfile_in(dir)
+        .map_err(|e| CatalogueError::write(path, format!("cannot create a temporary file: {e}")))
+}
+
+/// Temporary files are created private (0600); a finished file gets the usual permissions of
+/// a new file (0666 less the process umask, here taken as 022: 0644).
+fn set_readable(path: &Path) {
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        std::fs::set_permissions(path, std::fs::Permissions::from_mode(0o644)).ok();
+    }
+    #[cfg(not(unix))]
+    let _ = path;
+}
+
+/// Messages from a writer that name the temporary file name the destination instead.
+fn name_destination(message: String, tmp: &Path, path: &Path) -> String {
+    message.replace(&tmp.display().to_string(), &path.display().to_string())
+}
+
+/// Write `path` through an open temporary file.
+pub fn write_via_file(
+    path: &Path,
+    fill: impl FnOnce(&File) -> Result<(), String>,
+) -> Result<(), CatalogueError> {
+    let tmp = temporary(path)?;
+    fill(tmp.as_file())
+        .map_err(|e| CatalogueError::write(path, name_destination(e, tmp.path(), path)))?;
+    set_readable(tmp.path());
+    tmp.persist(path).map_err(|e| {
+        CatalogueError::write(
+            path,
+            format!("cannot move the finished file into place: {}", e.error),
+        )
+    })?;
+    Ok(())
+}
+
+/// Write `path` by a writer that creates its file by name (cfitsio, the PNG encoder): `fill`
+/// gets a fresh temporary path that does not exist yet, with the destination's extension.
+pub fn write_via_path(
+    path: &Path,
+    fill: impl FnOnce(&Path) -> Result<(), String>,
+) -> Result<(), CatalogueError> {
+    let tmp = temporary(path)?.into_temp_path();
+    let tmp_path: PathBuf = tmp.to_path_buf();
+    // The writer creates the file itself; the guard removes whatever is left on failure.
+    std::fs::remove_file(&tmp_path).ok();
+    fill(&tmp_path)
+        .map_err(|e| CatalogueError::write(path, name_destination(e, &tmp_path, path)))?;
+    set_readable(&tmp_path);
+    tmp.persist(path).map_err(|e| {
+        CatalogueError::write(
+            path,
+            format!("cannot move the finished file into place: {}", e.error),
+        )
+    })?;
+    Ok(())
+}
+
+/// Write `bytes` to `path`.
+pub fn write_bytes(path: &Path, bytes: &[u8]) -> Result<(), CatalogueError> {
+    write_via_file(path, |mut f| {
+        use std::io::Write;
+        f.write_all(bytes).map_err(|e| format!("cannot write: {e}"))
+    })
+}

@@ -1,0 +1,217 @@
+//! The plan of a `velocities` run (and of `groups` and `malmquist`, which are `velocities`
+//! with that stage on): settings settled against the input's record, every count checked,
+//! every file the run reads and writes named and checked before any work.
+
+use std::path::{Path, PathBuf};
+
+use crate::catalogue::{sidecar_path, Format};
+use crate::flow::outliers::OutlierSettings;
+use crate::settings::RunConfig;
+
+use super::common::Shared;
+use super::paths::Files;
+use super::run_file::merge_run_file;
+
+/// The largest number of Monte Carlo draws per object a run accepts.
+pub const MAX_MONTE_CARLO_DRAWS: usize = 1_000_000;
+
+/// What the user asked for.
+#[derive(Debug, Clone)]
+pub struct VelocityOrder {
+    pub input: PathBuf,
+    pub output: PathBuf,
+    /// Run file (TOML), merged under the flags.
+    pub run_file: Option<PathBuf>,
+    /// The flags as a run configuration.
+    pub flags: RunConfig,
+    pub force: bool,
+    /// Use settings that contradict the input's record.
+    pub override_input_settings: bool,
+    /// The command line as typed, for the record.
+    pub command_line: String,
+    /// The subcommand: `velocities`, `groups` or `malmquist`.
+    pub step: String,
+}
+
+/// A checked `velocities` run.
+#[derive(Debug, Clone)]
+pub struct VelocityPlan {
+    pub input: PathBuf,
+    pub output: PathBuf,
+    pub output_format: Format,
+    pub force: bool,
+    pub command_line: String,
+    pub step: String,
+    pub run_file: Option<PathBuf>,
+    pub shared: Shared,
+    /// Monte Carlo draws per object (0: none) and their seed.
+    pub draws: usize,
+    pub seed: u64,
+    pub outliers: Option<OutlierSettings>,
+    pub profile: Option<PathBuf>,
+    pub groups_output: Option<PathBuf>,
+    pub bulk_flow_output: Option<PathBuf>,
+    pub export_output: Option<PathBuf>,
+}
+
+impl VelocityPlan {
+    /// The run's settings (record, run file and flags settled).
+    pub fn config(&self) -> &RunConfig {
+        &self.shared.config
+    }
+
+    /// The files read, by role, the catalogue first.
+    pub fn inputs(&self) -> Vec<(&'static str, &Path)> {
+        let mut v: Vec<(&'static str, &Path)> = vec![("catalogue", self.input.as_path())];
+        if let Some(p) = &self.run_file {
+            v.push(("run file", p.as_path()));
+        }
+        if let Some(p) = &self.profile {
+            v.push(("Malmquist profile", p.as_path()));
+        }
+        v
+    }
+}
+
+/// `<stem>.<tag>.<ext>` next to `output` (the extension kept whole, e.g. `.fits.gz`).
+pub fn sibling_path(output: &Path, tag: &str) -> PathBuf {
+    let name = output
+        .file_name()
+        .map(|n| n.to_string_lossy().to_string())
+        .unwrap_or_default();
+    let lower = name.to_ascii_lowercase();
+    let ext_len = [
+        ".fits.gz", ".fit.gz", ".fits", ".fit", ".csv", ".tsv", ".parquet", ".pq",
+    ]
+    .iter()
+    .find(|e| lower.ends_with(*e))
+    .map(|e| e.len())
+    .unwrap_or(0);
+    let (stem, ext) = name.split_at(name.len() - ext_len);
+    output.with_file_name(format!("{stem}.{tag}{ext}"))
+}
+
+/// `<output>.<tag>.json`.
+pub fn sibling_json(output: &Path, tag: &str) -> PathBuf {
+    let mut s = output.as_os_str().to_owned();
+    s.push(format!(".{tag}.json"));
+    PathBuf::from(s)
+}
+
+/// A table output and, for CSV/TSV, its sidecar.
+pub(crate) fn table_output(files: &mut Files, role: &str, path: &Path) {
+    files.write(role, path);
+    if matches!(Format::from_path(path), Ok(Format::Csv | Format::Tsv)) {
+        files.write(&format!("{role}'s provenance sidecar"), &sidecar_path(path));
+    }
+}
+
+/// The output's format, from its name.
+pub(crate) fn format_of_output(path: &Path) -> Result<Format, String> {
+    Format::from_path(path).map_err(|_| {
+        format!(
+            "{}: unknown output type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet",
+            path.display()
+        )
+    })
+}
+
+/// Check the order and resolve it into a plan.
+pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, String> {
+    let user = merge_run_file(order.run_file.as_deref(), &order.flags)?;
+    let output_format = format_of_output(&order.output)?;
+    let shared = Shared::resolve(
+        Some(&order.input),
+        user.input.hdu.as_deref(),
+        &user,
+        order.override_input_settings,
+    )?;
+    let cfg = &shared.config;
+    let draws = cfg.errors.monte_carlo.unwrap_or(0);
+    if draws == 1 {
+        return Err("monte_carlo needs at least 2 draws per object to give percentiles".into());
+    }
+    if draws > MAX_MONTE_CARLO_DRAWS {
+        return Err(format!(
+            "monte_carlo = {draws} draws per object is more than the {MAX_MONTE_CARLO_DRAWS} flowsift accepts"
+        ));
+    }
+    let outliers = cfg
+        .outliers
+        .as_ref()
+        .map(OutlierSettings::from_choice)
+        .transpose()?;
+    if let Some(b) = &cfg.bulk_flow {
+        if let Some(s) = b.sigma_star {
+            if !(s.is_finite() && s >= 0.0) {
+                return Err(format!(
+                    "bulk flow: sigma_star must be non-negative, got {s}"
+                ));
+            }
+        }
+    }
+    let profile = cfg
+        .malmquist
+        .as_ref()
+        .and_then(|m| m.profile.as_ref())
+        .map(PathBuf::from);
+    if let Some(m) = &cfg.malmquist {
+        if m.method == Some(crate::settings::MalmquistMethod::Profile) && m.profile.is_none() {
+            return Err(
+                "Malmquist method 'profile' needs a profile table (profile = \"file\")".into(),
+            );
+        }
+    }
+    let groups_output = cfg.groups.as_ref().map(|g| match &g.output {
+        Some(p) => PathBuf::from(p),
+        None => sibling_path(&order.output, "groups"),
+    });
+    let bulk_flow_output = cfg
+        .bulk_flow
+        .as_ref()
+        .map(|_| sibling_json(&order.output, "bulkflow"));
+    let export_output = cfg.export.as_ref().map(|e| match &e.output {
+        Some(p) => PathBuf::from(p),
+        None => sibling_path(&order.output, "flow"),
+    });
+
+    let mut files = Files::new();
+    files.read("catalogue", &order.input);
+    if let Some(p) = &order.run_file {
+        files.read("run file", p);
+    }
+    if let Some(p) = &profile {
+        files.read("Malmquist profile", p);
+    }
+    table_output(&mut files, "output", &order.output);
+    if let Some(p) = &groups_output {
+        format_of_output(p)?;
+        table_output(&mut files, "group table", p);
+    }
+    if let Some(p) = &bulk_flow_output {
+        files.write("bulk-flow JSON", p);
+    }
+    if let Some(p) = &export_output {
+        format_of_output(p)?;
+        table_output(&mut files, "export", p);
+    }
+    files.check(order.force)?;
+
+    Ok(VelocityPlan {
+        input: order.input,
+        output: order.output,
+        output_format,
+        force: order.force,
+        command_line: order.command_line,
+        step: order.step,
+        run_file: order.run_file,
+        draws,
+        seed: cfg.errors.seed.unwrap_or(1),
+        outliers,
+        profile,
+        groups_output,
+        bulk_flow_output,
+        export_output,
+        shared,
+    })
+}
