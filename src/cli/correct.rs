@@ -5,16 +5,13 @@ use std::path::PathBuf;
 use anyhow::anyhow;
 use clap::{Args, ValueEnum};
 
-use flowsift::catalogue::field_io::read_field;
-use flowsift::physics::cosmology::LengthUnit;
-use flowsift::physics::field::{
-    hubble_per_length, AnalyticField, FieldAxes, FlowModel, InfallCentre,
+use flowsift::plan::{plan_correct, CorrectOrder};
+use flowsift::run::correct::run_correct;
+use flowsift::settings::{
+    DensityBoundary, FieldAxes, InfallChoice, InputChoice, LengthUnit, ModelChoice, RunConfig,
 };
-use flowsift::physics::power::growth_rate;
-use flowsift::run::correct::{run_correct, CorrectRequest};
 
-use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
-use super::velocities::{AngleArg, ZUnitArg};
+use super::options::{ConventionFlags, CosmologyFlags, FrameFlags, SkyRedshiftFlags};
 
 /// Correct redshifts for the peculiar velocities a model predicts.
 #[derive(Debug, Args)]
@@ -22,37 +19,28 @@ use super::velocities::{AngleArg, ZUnitArg};
     after_help = "Examples:\n  flowsift correct sne.csv --field flow.fits -o sne_corrected.csv --beta 0.43 --sigma-v 250\n  flowsift correct sne.csv -o out.parquet --bulk 150,-200,80 --infall cluster,-30,20,5,0.8,8"
 )]
 pub struct CorrectArgs {
-    /// Catalogue with ra, dec and z_helio (or cz_helio).
+    /// Catalogue with positions and redshifts (ra, dec and z_helio or cz_helio by default;
+    /// UCDs and unit cards are used as for `velocities`).
     pub input: PathBuf,
     /// Output (format by extension).
     #[arg(short, long)]
     pub output: PathBuf,
     #[command(flatten)]
     pub model: ModelFlags,
-    /// Right-ascension column (default ra).
-    #[arg(long = "ra-column", value_name = "NAME")]
-    pub ra: Option<String>,
-    /// Declination column (default dec).
-    #[arg(long = "dec-column", value_name = "NAME")]
-    pub dec: Option<String>,
-    /// Unit of ra/dec: deg, rad or sexagesimal.
-    #[arg(long = "angle-unit", value_enum, value_name = "UNIT")]
-    pub angle_unit: Option<AngleArg>,
-    /// Heliocentric redshift column (default z_helio, or cz_helio).
-    #[arg(long = "z-column", value_name = "NAME")]
-    pub z: Option<String>,
-    /// Unit of the redshift column: z or cz (km/s).
-    #[arg(long = "z-unit", value_enum, value_name = "UNIT")]
-    pub z_unit: Option<ZUnitArg>,
-    /// Redshift-error column (default z_err, or cz_err).
-    #[arg(long = "z-err-column", value_name = "NAME")]
-    pub z_err: Option<String>,
+    /// FITS extension to read, by EXTNAME or index.
+    #[arg(long, value_name = "NAME|INDEX")]
+    pub hdu: Option<String>,
+    #[command(flatten)]
+    pub columns: SkyRedshiftFlags,
     #[command(flatten)]
     pub cosmology: CosmologyFlags,
     #[command(flatten)]
     pub frame: FrameFlags,
     #[command(flatten)]
     pub conventions: ConventionFlags,
+    /// Use settings that contradict the ones recorded with a flowsift input.
+    #[arg(long = "override-input-settings")]
+    pub override_input_settings: bool,
     /// Replace an existing output.
     #[arg(long)]
     pub force: bool,
@@ -115,129 +103,29 @@ pub struct ModelFlags {
 }
 
 impl ModelFlags {
-    /// Build the model, or None when no model flag is given.
-    pub fn build(
-        &self,
-        params: &flowsift::physics::cosmology::CosmologyParams,
-    ) -> anyhow::Result<Option<(FlowModel, String)>> {
-        let axes_hint = self.field_axes.map(|x| match x {
-            AxesArg::Supergalactic => FieldAxes::Supergalactic,
-            AxesArg::Galactic => FieldAxes::Galactic,
-        });
-        let unit_hint = self.field_unit.map(|u| match u {
-            UnitArg::Mpc => LengthUnit::Mpc,
-            UnitArg::MpcOverH => LengthUnit::MpcOverH,
-        });
-        let mut description = vec![];
-        let grid = match (&self.field, &self.density) {
-            (Some(p), _) => {
-                description.push(format!("grid {}", p.display()));
-                Some(read_field(p, axes_hint, unit_hint)?)
-            }
-            (None, Some(p)) => {
-                use flowsift::physics::field::{
-                    velocity_from_density, velocity_from_density_isolated, DensityBoundary,
-                };
-                let d = flowsift::catalogue::field_io::read_density(p, axes_hint, unit_hint)?;
-                let f = self
-                    .growth_rate
-                    .unwrap_or_else(|| growth_rate(params.omega_m, params.omega_de, 0.0));
-                let boundary = match self.density_boundary {
-                    Some(BoundaryArg::Periodic) => DensityBoundary::Periodic,
-                    Some(BoundaryArg::Isolated) | None => DensityBoundary::Isolated,
-                };
-                let solve = match boundary {
-                    DensityBoundary::Isolated => velocity_from_density_isolated,
-                    DensityBoundary::Periodic => velocity_from_density,
-                };
-                let v = solve(
-                    &d.v[0],
-                    d.shape,
-                    d.spacing,
-                    f,
-                    hubble_per_length(params, d.length_unit),
-                );
-                let outside = match boundary {
-                    DensityBoundary::Isolated => "δ = 0 outside the grid",
-                    DensityBoundary::Periodic => "the grid taken as a periodic box",
-                };
-                description.push(format!(
-                    "linear-theory velocities from the density grid {} (f = {f:.4}, {outside})",
-                    p.display()
-                ));
-                Some(flowsift::physics::field::VelocityGrid { v, ..d })
-            }
-            (None, None) => None,
-        };
-        let centres: Vec<InfallCentre> = self
-            .infall
-            .iter()
-            .map(|s| parse_infall(s))
-            .collect::<anyhow::Result<_>>()?;
-        let analytic = if self.bulk.is_some() || !centres.is_empty() {
-            let axes = grid
-                .as_ref()
-                .map(|g| g.axes)
-                .or(axes_hint)
-                .unwrap_or(FieldAxes::Supergalactic);
-            let unit = grid
-                .as_ref()
-                .map(|g| g.length_unit)
-                .or(unit_hint)
-                .unwrap_or(LengthUnit::Mpc);
-            let bulk = self
-                .bulk
-                .as_ref()
-                .map(|b| [b[0], b[1], b[2]])
-                .unwrap_or([0.0; 3]);
-            let f = growth_rate(params.omega_m, params.omega_de, 0.0);
-            if self.bulk.is_some() {
-                description.push(format!(
-                    "uniform flow ({}, {}, {}) km/s",
-                    bulk[0], bulk[1], bulk[2]
-                ));
-            }
-            for c in &centres {
-                description.push(format!(
-                    "linear infall onto '{}' (Δ0 = {}, r_s = {})",
-                    c.name, c.delta0, c.r_scale
-                ));
-            }
-            Some(AnalyticField {
-                bulk,
-                centres,
-                growth_rate: f,
-                h0_km_s_per_length: hubble_per_length(params, unit),
-                axes,
-                length_unit: unit,
-            })
-        } else {
-            None
-        };
-        if grid.is_none() && analytic.is_none() && self.external.is_none() {
-            return Ok(None);
-        }
-        let model = FlowModel {
-            grid,
-            analytic,
-            beta: self.beta.unwrap_or(1.0),
-            external: self
-                .external
-                .as_ref()
-                .map(|e| [e[0], e[1], e[2]])
-                .unwrap_or([0.0; 3]),
-            sigma_v: self.sigma_v.unwrap_or(250.0),
-        };
-        model.check().map_err(|e| anyhow!("velocity model: {e}"))?;
-        let axes = model.axes().unwrap_or(FieldAxes::Supergalactic);
-        description.push(format!(
-            "β = {}, V_ext = {:?} km/s, σ_v = {} km/s, {} axes",
-            model.beta,
-            model.external,
-            model.sigma_v,
-            axes.name()
-        ));
-        Ok(Some((model, description.join("; "))))
+    /// The flags as a model choice.
+    pub fn choice(&self) -> anyhow::Result<ModelChoice> {
+        Ok(ModelChoice {
+            field: self.field.as_ref().map(|p| p.display().to_string()),
+            density: self.density.as_ref().map(|p| p.display().to_string()),
+            density_boundary: self.density_boundary.map(|b| match b {
+                BoundaryArg::Isolated => DensityBoundary::Isolated,
+                BoundaryArg::Periodic => DensityBoundary::Periodic,
+            }),
+            growth_rate: self.growth_rate,
+            field_axes: self.field_axes.map(AxesArg::axes),
+            field_unit: self.field_unit.map(UnitArg::unit),
+            bulk: self.bulk,
+            infall: self
+                .infall
+                .iter()
+                .map(|s| InfallChoice::parse(s))
+                .collect::<Result<_, _>>()
+                .map_err(|e| anyhow!(e))?,
+            beta: self.beta,
+            external: self.external,
+            sigma_v: self.sigma_v,
+        })
     }
 }
 
@@ -259,58 +147,44 @@ pub enum UnitArg {
     MpcOverH,
 }
 
-pub fn parse_infall(s: &str) -> anyhow::Result<InfallCentre> {
-    let p: Vec<&str> = s.split(',').map(str::trim).collect();
-    if p.len() != 6 {
-        return Err(anyhow!(
-            "--infall '{s}': expected NAME,X,Y,Z,DELTA0,R_SCALE"
-        ));
+impl AxesArg {
+    pub fn axes(self) -> FieldAxes {
+        match self {
+            AxesArg::Supergalactic => FieldAxes::Supergalactic,
+            AxesArg::Galactic => FieldAxes::Galactic,
+        }
     }
-    let num = |i: usize| -> anyhow::Result<f64> {
-        p[i].parse::<f64>()
-            .map_err(|_| anyhow!("--infall '{s}': '{}' is not a number", p[i]))
-    };
-    Ok(InfallCentre {
-        name: p[0].to_string(),
-        position: [num(1)?, num(2)?, num(3)?],
-        delta0: num(4)?,
-        r_scale: num(5)?,
-    })
+}
+
+impl UnitArg {
+    pub fn unit(self) -> LengthUnit {
+        match self {
+            UnitArg::Mpc => LengthUnit::Mpc,
+            UnitArg::MpcOverH => LengthUnit::MpcOverH,
+        }
+    }
 }
 
 pub fn run(a: CorrectArgs) -> anyhow::Result<()> {
-    let cosmology = a.cosmology.choice();
-    let params = cosmology.resolve().map_err(|e| anyhow!(e))?.params;
-    let (model, description) = a
-        .model
-        .build(&params)?
-        .ok_or_else(|| anyhow!("give a velocity model: --field FILE, --bulk VX,VY,VZ, --infall … or --external VX,VY,VZ"))?;
-    let summary = run_correct(&CorrectRequest {
+    let plan = plan_correct(CorrectOrder {
         input: a.input.clone(),
         output: a.output.clone(),
+        flags: RunConfig {
+            input: InputChoice { hdu: a.hdu.clone() },
+            columns: a.columns.choice(),
+            cosmology: a.cosmology.choice(),
+            frame: a.frame.choice(),
+            conventions: a.conventions.choice(),
+            ..Default::default()
+        },
+        model: a.model.choice()?,
         force: a.force,
+        override_input_settings: a.override_input_settings,
         command_line: std::env::args().collect::<Vec<_>>().join(" "),
-        ra: a.ra.clone(),
-        dec: a.dec.clone(),
-        z: a.z.clone(),
-        z_unit: a.z_unit.map(|u| match u {
-            ZUnitArg::Z => flowsift::settings::RedshiftUnit::Z,
-            ZUnitArg::Cz => flowsift::settings::RedshiftUnit::Cz,
-        }),
-        z_err: a.z_err.clone(),
-        angle_unit: a.angle_unit.map(|x| match x {
-            AngleArg::Deg => flowsift::settings::AngleUnit::Deg,
-            AngleArg::Rad => flowsift::settings::AngleUnit::Rad,
-            AngleArg::Sexagesimal => flowsift::settings::AngleUnit::Sexagesimal,
-        }),
-        cosmology,
-        frame: a.frame.choice(),
-        convention: a.conventions.choice().dl_convention.unwrap_or_default(),
-        model: &model,
-        model_description: description.clone(),
     })
     .map_err(|e| anyhow!(e))?;
-    println!("corrected {} rows with {description}", summary.rows);
+    let summary = run_correct(&plan).map_err(|e| anyhow!(e))?;
+    println!("corrected {} rows", summary.rows);
     for (name, n) in &summary.counts {
         println!("  {name:<20} {n:>8}");
     }

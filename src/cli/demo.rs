@@ -9,6 +9,7 @@ use clap::Args;
 use flowsift::catalogue::{read_table, ReadOptions, Table};
 use flowsift::mock::MockSpec;
 use flowsift::plan::{plan_velocities, VelocityOrder};
+use flowsift::run::demo::demo_hubble_check;
 use flowsift::run::{run_velocities, Stage};
 use flowsift::settings::ConventionChoice;
 use flowsift::settings::{ErrorChoice, RunConfig};
@@ -237,105 +238,26 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
 
 /// The corrected Hubble diagram: `correct` with the scenario's velocity field, then the
 /// residual scatter before and after for the SN Ia-like objects.
-fn corrected_hubble_diagram(
-    data: &std::path::Path,
-    out_dir: &std::path::Path,
-) -> anyhow::Result<()> {
+fn corrected_hubble_diagram(data: &Path, out_dir: &Path) -> anyhow::Result<()> {
     let field_path = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data/lantern_field.fits");
     if !field_path.exists() {
         println!("note: no demo-data/lantern_field.fits; make it with: flowsift field --scenario lantern -o demo-data/lantern_field.fits");
         return Ok(());
     }
-    let params = flowsift::physics::cosmology::CosmologyParams::default_common_practice();
-    let flags = super::correct::ModelFlags {
-        field: Some(field_path.clone()),
-        sigma_v: Some(250.0),
-        ..Default::default()
-    };
-    let (model, description) = flags.build(&params)?.expect("a field was given");
     let out = out_dir.join("lantern_corrected.fits");
-    if out.exists() {
-        std::fs::remove_file(&out)?;
-    }
-    let s = flowsift::run::correct::run_correct(&flowsift::run::correct::CorrectRequest {
-        input: data.to_path_buf(),
-        output: out.clone(),
-        force: true,
-        command_line: format!(
-            "flowsift demo (correct {} --field {})",
-            data.display(),
-            field_path.display()
-        ),
-        ra: None,
-        dec: None,
-        z: None,
-        z_unit: None,
-        z_err: None,
-        angle_unit: None,
-        cosmology: Default::default(),
-        frame: Default::default(),
-        convention: Default::default(),
-        model: &model,
-        model_description: description,
-    })
-    .map_err(|e| anyhow!(e))?;
-    let t = read_table(&out, &ReadOptions::default())?;
-    let cosmology =
-        flowsift::physics::cosmology::Cosmology::new(params).map_err(|e| anyhow!("{e}"))?;
-    let mu = column(&t, "mu")?;
-    let zc = column(&t, "true_z_cmb")?;
-    let zm = column(&t, "z_cos_model")?;
-    let zt = column(&t, "true_z_cos")?;
-    let ze = column(&t, "z_cos_model_err")?;
-    let zh = column(&t, "z_helio")?;
-    let pop = flowsift::flow::sample::text_column(&t, "population").map_err(|e| anyhow!(e))?;
-    let bad = t
-        .frame
-        .column("true_outlier")?
-        .bool()?
-        .iter()
-        .map(|b| b.unwrap_or(false))
-        .collect::<Vec<_>>();
-    // Hubble residuals μ − μ_model(z) in the observed convention, D_L = (1 + z_helio) D_M(z).
-    let mu_model = |z: f64, z_helio: f64| {
-        cosmology
-            .transverse_comoving_distance(z)
-            .map(|dm| 5.0 * ((1.0 + z_helio) * dm).log10() + 25.0)
-            .unwrap_or(f64::NAN)
-    };
-    let (mut before, mut after, mut n, mut within) = (vec![], vec![], 0usize, 0usize);
-    for i in 0..mu.len() {
-        if bad[i] || pop[i].as_deref() != Some("sn-ia") {
-            continue;
-        }
-        if let (Some(m), Some(c), Some(z), Some(t), Some(e), Some(h)) =
-            (mu[i], zc[i], zm[i], zt[i], ze[i], zh[i])
-        {
-            n += 1;
-            before.push(m - mu_model(c, h));
-            after.push(m - mu_model(z, h));
-            if (z - t).abs() <= e {
-                within += 1;
-            }
-        }
-    }
-    let rms = |v: &[f64]| {
-        let mean = v.iter().sum::<f64>() / v.len().max(1) as f64;
-        (v.iter().map(|x| (x - mean).powi(2)).sum::<f64>() / v.len().max(1) as f64).sqrt()
-    };
+    let h = demo_hubble_check(data, &field_path, &out).map_err(|e| anyhow!(e))?;
     println!();
     println!("corrected Hubble diagram (flowsift correct with demo-data/lantern_field.fits, σ_v = 250 km/s):");
-    for (name, k) in &s.counts {
+    for (name, k) in &h.counts {
         println!("  field_flag {name:<18} {k:>6}");
     }
     println!(
-        "  SN Ia-like objects ({n}): Hubble residual rms {:.4} mag at z_cmb → {:.4} mag at z_cos_model",
-        rms(&before),
-        rms(&after)
+        "  SN Ia-like objects ({}): Hubble residual rms {:.4} mag at z_cmb → {:.4} mag at z_cos_model",
+        h.objects, h.rms_before, h.rms_after
     );
     println!(
         "  true z_cos within ±z_cos_model_err: {:.1}% (≈ 68% expected)",
-        100.0 * within as f64 / n.max(1) as f64
+        100.0 * h.within_fraction
     );
     println!("wrote {}", out.display());
     Ok(())

@@ -4,6 +4,10 @@ use anyhow::anyhow;
 use clap::Args;
 use serde_json::json;
 
+use flowsift::plan::Shared;
+use flowsift::run::distances::distance_table;
+use flowsift::settings::RunConfig;
+
 use super::options::{ConventionFlags, CosmologyFlags};
 
 /// Distances at a list of redshifts.
@@ -29,51 +33,33 @@ pub struct DistancesArgs {
 }
 
 pub fn run(a: DistancesArgs) -> anyhow::Result<()> {
-    let zs: Vec<f64> = a.z.clone();
-    if zs.is_empty() {
+    if a.z.is_empty() {
         return Err(anyhow!("give at least one redshift with --z"));
     }
-    for &z in &zs {
-        if !z.is_finite() {
-            return Err(anyhow!("--z: {z} is not a finite redshift"));
-        }
-        if z <= -1.0 {
-            return Err(anyhow!(
-                "--z: redshift {z} is not above -1 (1 + z must be positive)"
-            ));
-        }
-        if z < 0.0 {
-            return Err(anyhow!(
-                "--z: negative redshift {z} has no distance in an expanding model"
-            ));
-        }
-    }
-    let resolved = a.cosmology.choice().resolve().map_err(|e| anyhow!(e))?;
-    let z_max = zs.iter().cloned().fold(0.0, f64::max);
-    let cosmology = if z_max > flowsift::physics::cosmology::DEFAULT_Z_MAX {
-        flowsift::physics::cosmology::Cosmology::with_z_max(resolved.params, z_max * 1.01)
-            .map_err(|e| anyhow!("{e}"))?
-    } else {
-        resolved.build(z_max).map_err(|e| anyhow!(e))?
-    };
-    cosmology.ensure_covers(z_max).map_err(|e| anyhow!("{e}"))?;
-    let unit = a.conventions.choice().length_unit.unwrap_or_default();
-    let k = unit.from_mpc_factor(&resolved.params);
-    let rows: Vec<_> = zs
-        .iter()
-        .map(|&z| cosmology.distances(z).map_err(|e| anyhow!("z = {z}: {e}")))
-        .collect::<Result<_, _>>()?;
+    let conventions = a.conventions.choice();
+    let shared = Shared::resolve(
+        None,
+        None,
+        &RunConfig {
+            cosmology: a.cosmology.choice(),
+            conventions,
+            ..Default::default()
+        },
+        false,
+    )
+    .map_err(|e| anyhow!(e))?;
+    let rows = distance_table(&a.z, &shared).map_err(|e| anyhow!(e))?;
     if a.json {
         let arr: Vec<_> = rows
             .iter()
             .map(|d| {
-                json!({"z": d.z, "d_c": d.d_c * k, "d_m": d.d_m * k, "d_l": d.d_l * k, "d_a": d.d_a * k, "mu": d.mu})
+                json!({"z": d.z, "d_c": d.d_c, "d_m": d.d_m, "d_l": d.d_l, "d_a": d.d_a, "mu": d.mu})
             })
             .collect();
         println!("{}", serde_json::to_string_pretty(&arr)?);
         return Ok(());
     }
-    let u = unit.label();
+    let u = conventions.length_unit.unwrap_or_default().label();
     println!(
         "{:>10}  {:>14}  {:>14}  {:>14}  {:>14}  {:>9}",
         "z",
@@ -86,17 +72,12 @@ pub fn run(a: DistancesArgs) -> anyhow::Result<()> {
     for d in rows {
         println!(
             "{:>10}  {:>14.4}  {:>14.4}  {:>14.4}  {:>14.4}  {:>9.4}",
-            d.z,
-            d.d_c * k,
-            d.d_m * k,
-            d.d_l * k,
-            d.d_a * k,
-            d.mu
+            d.z, d.d_c, d.d_m, d.d_l, d.d_a, d.mu
         );
     }
     println!(
         "note: {} (Ω_k = {:.3e}); μ uses D_L in Mpc whatever the length unit.",
-        resolved.source, resolved.omega_k
+        shared.cosmology.source, shared.cosmology.omega_k
     );
     Ok(())
 }

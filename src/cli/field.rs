@@ -6,14 +6,11 @@ use std::path::PathBuf;
 use anyhow::anyhow;
 use clap::Args;
 
-use flowsift::catalogue::field_io::{write_field_fits, write_field_table};
-use flowsift::catalogue::Format;
-use flowsift::physics::cosmology::LengthUnit;
-use flowsift::physics::field::{hubble_per_length, AnalyticField, FieldAxes};
-use flowsift::physics::power::growth_rate;
-use flowsift::physics::sky::SkyRotations;
+use flowsift::plan::{plan_field, FieldOrder};
+use flowsift::run::generate::run_field;
+use flowsift::settings::{InfallChoice, RunConfig};
 
-use super::correct::{parse_infall, AxesArg, UnitArg};
+use super::correct::{AxesArg, UnitArg};
 use super::options::CosmologyFlags;
 
 /// Sample an analytic velocity model onto a grid file.
@@ -59,85 +56,35 @@ pub struct FieldArgs {
 }
 
 pub fn run(a: FieldArgs) -> anyhow::Result<()> {
-    let params = a
-        .cosmology
-        .choice()
-        .resolve()
-        .map_err(|e| anyhow!(e))?
-        .params;
-    let axes = match a.field_axes {
-        Some(AxesArg::Galactic) => FieldAxes::Galactic,
-        _ => FieldAxes::Supergalactic,
-    };
-    let unit = match a.field_unit {
-        Some(UnitArg::MpcOverH) => LengthUnit::MpcOverH,
-        _ => LengthUnit::Mpc,
-    };
-    let mut bulk = a
-        .bulk
-        .as_ref()
-        .map(|b| [b[0], b[1], b[2]])
-        .unwrap_or([0.0; 3]);
-    let (mut cells, mut spacing) = (48, 18.0);
-    match a.scenario.as_deref() {
-        Some("lantern") => {
-            // The demo survey's flow, given in Galactic axes by the mock spec; a uniform flow
-            // interpolates exactly, so a coarse grid reaching past z = 0.1 will do.
-            let g = flowsift::mock::MockSpec::demo_survey().bulk_flow;
-            bulk = axes.from_galactic(&SkyRotations::default(), g);
-            (cells, spacing) = (26, 36.0);
-        }
-        Some(other) => return Err(anyhow!("unknown scenario '{other}'; known: lantern")),
-        None => {}
-    }
-    if a.output.exists() && !a.force {
-        return Err(anyhow!(
-            "{}: output exists; pass --force to replace it",
-            a.output.display()
-        ));
-    }
-    let centres = a
-        .infall
-        .iter()
-        .map(|s| parse_infall(s))
-        .collect::<anyhow::Result<Vec<_>>>()?;
-    let model = AnalyticField {
-        bulk,
-        centres,
-        growth_rate: growth_rate(params.omega_m, params.omega_de, 0.0),
-        h0_km_s_per_length: hubble_per_length(&params, unit),
-        axes,
-        length_unit: unit,
-    };
-    let n = a.cells.unwrap_or(cells);
-    let s = a.spacing.unwrap_or(spacing);
-    if n < 2 || !(s.is_finite() && s > 0.0) {
-        return Err(anyhow!("--cells must be at least 2 and --spacing positive"));
-    }
-    let half = 0.5 * (n as f64 - 1.0) * s;
-    let grid = model
-        .sample([-half; 3], s, [n; 3])
-        .map_err(|e| anyhow!("{e}"))?;
-    if a.output.exists() {
-        std::fs::remove_file(&a.output)?;
-    }
-    match Format::from_path(&a.output)? {
-        Format::Fits => write_field_fits(&a.output, &grid)?,
-        _ => write_field_table(
-            &a.output,
-            &grid,
-            &flowsift::catalogue::WriteOptions {
-                force: a.force,
-                protected: vec![],
-            },
-        )?,
-    }
+    let plan = plan_field(FieldOrder {
+        output: a.output.clone(),
+        scenario: a.scenario.clone(),
+        bulk: a.bulk,
+        infall: a
+            .infall
+            .iter()
+            .map(|s| InfallChoice::parse(s))
+            .collect::<Result<_, _>>()
+            .map_err(|e| anyhow!(e))?,
+        cells: a.cells,
+        spacing: a.spacing,
+        axes: a.field_axes.map(AxesArg::axes),
+        unit: a.field_unit.map(UnitArg::unit),
+        flags: RunConfig {
+            cosmology: a.cosmology.choice(),
+            ..Default::default()
+        },
+        force: a.force,
+    })
+    .map_err(|e| anyhow!(e))?;
+    let half = run_field(&plan).map_err(|e| anyhow!(e))?;
     println!(
-        "wrote a {n}³ grid of {s} {} cells ({} axes, ±{half} {}) to {}",
-        unit.label(),
-        axes.name(),
-        unit.label(),
-        a.output.display()
+        "wrote a {n}³ grid of {s} {u} cells ({} axes, ±{half} {u}) to {}",
+        plan.axes.name(),
+        a.output.display(),
+        n = plan.cells,
+        s = plan.spacing,
+        u = plan.unit.label(),
     );
     Ok(())
 }

@@ -2,8 +2,7 @@
 
 use clap::Args;
 
-use flowsift::physics::cosmology::PRESETS;
-use flowsift::physics::restframe::apex_table;
+use flowsift::settings::{apex_table, PRESETS};
 
 /// List apices and cosmology presets.
 #[derive(Debug, Args)]

@@ -1,15 +1,12 @@
 //! `flowsift galaxy`: one object from the command line.
 
-use anyhow::{anyhow, Context};
+use anyhow::anyhow;
 use clap::Args;
 use serde_json::json;
 
-use flowsift::physics::estimators::{Distance, DistanceKind, EstimatorOptions};
-use flowsift::physics::object::{evaluate, ObjectContext, ObjectInput};
-use flowsift::physics::redshift::{Heliocentric, Redshift};
-use flowsift::physics::sky::{parse_dec_deg, parse_ra_deg, Direction, Icrs, SkyRotations};
-use flowsift::physics::PhysicsError;
-use flowsift::settings::cautions;
+use flowsift::plan::galaxy::{plan_galaxy, GalaxyOrder};
+use flowsift::run::galaxy::run_galaxy;
+use flowsift::settings::{DistanceKind, RunConfig};
 
 use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
 use super::table::{print_rows, row};
@@ -118,14 +115,6 @@ pub struct GalaxyArgs {
 }
 
 pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
-    let ra = parse_ra_deg(&a.ra).context("--ra")?;
-    let dec = parse_dec_deg(&a.dec).context("--dec")?;
-    let z_helio = match (a.z_helio, a.cz_helio) {
-        (Some(z), _) => z,
-        (None, Some(cz)) => cz / flowsift::physics::constants::C_KM_S,
-        (None, None) => unreachable!("clap requires one"),
-    };
-    Redshift::<Heliocentric>::new(z_helio).context("--z-helio")?;
     let (kind, value, error) = match (a.mu, a.dl, a.dc, a.eta) {
         (Some(v), ..) => (DistanceKind::Mu, v, a.mu_err),
         (_, Some(v), ..) => (DistanceKind::Dl, v, a.dl_err),
@@ -133,77 +122,38 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
         (.., Some(v)) => (DistanceKind::Eta, v, a.eta_err),
         _ => return Err(anyhow!("give one distance: --mu, --dl, --dc or --eta")),
     };
-    if !value.is_finite() {
-        return Err(anyhow!(PhysicsError::NotFinite {
-            quantity: "distance",
-            value
-        }))
-        .context(format!("--{}", kind.name()));
-    }
-    if matches!(kind, DistanceKind::Dl | DistanceKind::Dc) && value <= 0.0 {
-        return Err(anyhow!(
-            "--{} must be a positive distance, got {value}",
-            kind.name()
-        ));
-    }
-    for (flag, v) in [
-        ("--z-err", a.z_err),
-        ("distance error", error),
-        ("--sigma-star", a.conventions.sigma_star),
-    ] {
-        if let Some(v) = v {
-            if !(v.is_finite() && v >= 0.0) {
-                return Err(anyhow!("{flag} must be a non-negative number, got {v}"));
-            }
-        }
-    }
-    let cosmo_choice = a.cosmology.choice().resolve().map_err(|e| anyhow!(e))?;
-    let frames = a.frame.choice().resolve().map_err(|e| anyhow!(e))?;
-    let conv = a.conventions.choice();
-    let convention = conv.dl_convention.unwrap_or_default();
-    let length_unit = conv.length_unit.unwrap_or_default();
-
-    // The table must reach beyond the largest redshift in play.
-    let z_needed = (z_helio + 1.0) * 1.01 + 1.0;
-    let cosmology = cosmo_choice
-        .build(z_needed.min(19.0))
-        .map_err(|e| anyhow!(e))?;
-    let ctx = ObjectContext {
-        cosmology: &cosmology,
-        rotations: SkyRotations::default(),
-        cmb: frames.cmb,
-        method: frames.method,
-        options: EstimatorOptions {
-            convention,
-            sigma_star_km_s: conv.sigma_star.unwrap_or(0.0),
+    let plan = plan_galaxy(GalaxyOrder {
+        ra: a.ra.clone(),
+        dec: a.dec.clone(),
+        z_helio: a.z_helio,
+        cz_helio: a.cz_helio,
+        z_err: a.z_err,
+        distance_kind: kind,
+        distance: value,
+        distance_err: error,
+        flags: RunConfig {
+            cosmology: a.cosmology.choice(),
+            frame: a.frame.choice(),
+            conventions: a.conventions.choice(),
+            ..Default::default()
         },
-        length_unit,
-    };
-    let input = ObjectInput {
-        ra_deg: ra,
-        dec_deg: dec,
-        z_helio,
-        z_err: a.z_err.unwrap_or(0.0),
-        distance: Distance {
-            kind,
-            value,
-            error: error.unwrap_or(0.0),
-        },
-    };
-    let r =
-        evaluate(&ctx, &input).map_err(|e| anyhow!("cannot derive a peculiar velocity: {e}"))?;
-
-    // The other rest frames, for reference.
-    let gal = ctx
-        .rotations
-        .icrs_to_galactic
-        .apply(&Direction::<Icrs>::from_lon_lat_deg(ra, dec)?);
-    let zh = Redshift::<Heliocentric>::new(z_helio)?;
-    let z_lg = frames.local_group.from_heliocentric(zh, &gal).value();
-    let z_gsr = frames.galactic_rest.from_heliocentric(zh, &gal).value();
-    let z_lsr = frames.lsr.from_heliocentric(zh, &gal).value();
-    let has_errors = a.z_err.is_some() || error.is_some() || conv.sigma_star.is_some();
-    let notes = cautions(&cosmo_choice, &frames, convention);
+    })
+    .map_err(|e| anyhow!(e))?;
+    let report = run_galaxy(&plan).map_err(|e| anyhow!(e))?;
+    let r = &report.result;
+    let (ra, dec, z_helio) = (plan.ra_deg, plan.dec_deg, plan.z_helio);
+    let (z_lg, z_gsr, z_lsr) = (report.z_lg, report.z_gsr, report.z_lsr);
+    let frames = &plan.shared.frames;
+    let cosmo_choice = &plan.shared.cosmology;
+    let convention = plan.shared.convention;
+    let length_unit = plan
+        .shared
+        .config
+        .conventions
+        .length_unit
+        .unwrap_or_default();
+    let has_errors = plan.has_errors();
+    let notes = report.cautions.clone();
     let unit = length_unit.label();
 
     if a.json {

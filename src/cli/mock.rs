@@ -5,9 +5,9 @@ use std::path::PathBuf;
 use anyhow::anyhow;
 use clap::Args;
 
-use flowsift::catalogue::{write_table, Provenance, WriteOptions};
-use flowsift::mock::{DistanceError, MockSpec, Population};
-use flowsift::physics::restframe::Boost;
+use flowsift::plan::{plan_mock, MockOrder, MockOverrides};
+use flowsift::run::generate::run_mock;
+use flowsift::settings::{ModelChoice, RunConfig};
 
 use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
 
@@ -98,154 +98,44 @@ pub struct MockArgs {
     pub force: bool,
 }
 
-fn base_spec(scenario: &Option<String>) -> anyhow::Result<MockSpec> {
-    Ok(match scenario.as_deref() {
-        Some("lantern") => MockSpec::demo_survey(),
-        Some(other) => return Err(anyhow!("unknown scenario '{other}'; known: lantern")),
-        None => MockSpec {
-            name: "mock".into(),
-            n: 1000,
-            seed: 1,
-            bulk_flow: [0.0; 3],
-            sigma_v: 250.0,
-            z_min: 0.003,
-            z_max: 0.1,
-            zone_of_avoidance_deg: None,
-            z_err: 0.0,
-            populations: vec![Population {
-                name: "generic".into(),
-                fraction: 1.0,
-                distance_error: DistanceError::Fractional(0.2),
-            }],
-            outlier_fraction: 0.0,
-            outlier_offset_mag: [2.5, 4.0],
-        },
-    })
-}
-
 pub fn run(a: MockArgs) -> anyhow::Result<()> {
-    let mut spec = base_spec(&a.scenario)?;
-    if let Some(n) = a.n {
-        spec.n = n;
-    }
-    if let Some(s) = a.seed {
-        spec.seed = s;
-    }
-    if let Some(b) = &a.bulk_flow {
-        spec.bulk_flow = [b[0], b[1], b[2]];
-    }
-    if let Some(v) = a.sigma_v {
-        spec.sigma_v = v;
-    }
-    if let Some(z) = a.z_min {
-        spec.z_min = z;
-    }
-    if let Some(z) = a.z_max {
-        spec.z_max = z;
-    }
-    if let Some(e) = a.z_err {
-        spec.z_err = e;
-    }
-    if let Some(f) = a.outlier_fraction {
-        spec.outlier_fraction = f;
-    }
-    if let Some(c) = a.sky_cut {
-        spec.zone_of_avoidance_deg = Some(c);
-    }
-    let single = |err: DistanceError| {
-        vec![Population {
-            name: "generic".into(),
-            fraction: 1.0,
-            distance_error: err,
-        }]
-    };
-    if let Some(m) = a.mu_err {
-        spec.populations = single(DistanceError::Magnitudes(m));
-    }
-    if let Some(f) = a.distance_error {
-        spec.populations = single(DistanceError::Fractional(f));
-    }
-    let resolved = a.cosmology.choice().resolve().map_err(|e| anyhow!(e))?;
-    let cosmology = resolved
-        .build(spec.z_max.max(0.1))
-        .map_err(|e| anyhow!(e))?;
-    let frames = a.frame.choice().resolve().map_err(|e| anyhow!(e))?;
-    let convention = a.conventions.choice().dl_convention.unwrap_or_default();
-    let boost: Boost<_> = frames.cmb;
-    let model = match &a.field {
-        Some(p) => {
-            let flags = super::correct::ModelFlags {
-                field: Some(p.clone()),
-                field_axes: a.field_axes,
-                field_unit: a.field_unit,
-                beta: a.field_beta,
-                ..Default::default()
-            };
-            flags.build(&resolved.params)?.map(|m| m.0)
-        }
-        None => None,
-    };
-    let rot = flowsift::physics::sky::SkyRotations::default();
-    let h = resolved.params.little_h();
-    let radial = |n_gal: [f64; 3], r_mpc: f64| -> Option<f64> {
-        let m = model.as_ref()?;
-        let k = match m
-            .length_unit()
-            .unwrap_or(flowsift::physics::cosmology::LengthUnit::Mpc)
-        {
-            flowsift::physics::cosmology::LengthUnit::Mpc => 1.0,
-            flowsift::physics::cosmology::LengthUnit::MpcOverH => h,
-        };
-        let n = m
-            .axes()
-            .unwrap_or(flowsift::physics::field::FieldAxes::Supergalactic)
-            .from_galactic(&rot, n_gal);
-        m.radial_velocity([n[0] * r_mpc * k, n[1] * r_mpc * k, n[2] * r_mpc * k])
-    };
-    let field: Option<&flowsift::mock::RadialField<'_>> =
-        if model.is_some() { Some(&radial) } else { None };
-    let mock = flowsift::mock::generate_with_field(&spec, &cosmology, &boost, convention, field)
-        .map_err(|e| anyhow!("{e}"))?;
-    let table = mock.to_table();
-    let mut provenance = Provenance::default();
-    provenance.entries.push((
-        "software".into(),
-        format!("flowsift {}", env!("CARGO_PKG_VERSION")),
-    ));
-    provenance.entries.push((
-        "command".into(),
-        std::env::args().collect::<Vec<_>>().join(" "),
-    ));
-    provenance
-        .entries
-        .push(("mock_spec".into(), serde_json::to_string(&spec)?));
-    if let Some(p) = &a.field {
-        provenance
-            .entries
-            .push(("field".into(), p.display().to_string()));
-    }
-    provenance
-        .entries
-        .push(("cosmology".into(), serde_json::to_string(&resolved)?));
-    provenance
-        .entries
-        .push(("cmb_apex".into(), serde_json::to_string(&frames.cmb_apex)?));
-    provenance
-        .entries
-        .push(("dl_convention".into(), convention.name().into()));
-    write_table(
-        &a.output,
-        &table,
-        &provenance,
-        &WriteOptions {
-            force: a.force,
-            protected: vec![],
+    let plan = plan_mock(MockOrder {
+        output: a.output.clone(),
+        scenario: a.scenario.clone(),
+        overrides: MockOverrides {
+            n: a.n,
+            seed: a.seed,
+            bulk_flow: a.bulk_flow,
+            sigma_v: a.sigma_v,
+            z_min: a.z_min,
+            z_max: a.z_max,
+            mu_err: a.mu_err,
+            distance_error: a.distance_error,
+            z_err: a.z_err,
+            outlier_fraction: a.outlier_fraction,
+            sky_cut: a.sky_cut,
         },
-    )?;
+        model: ModelChoice {
+            field: a.field.as_ref().map(|p| p.display().to_string()),
+            field_axes: a.field_axes.map(super::correct::AxesArg::axes),
+            field_unit: a.field_unit.map(super::correct::UnitArg::unit),
+            beta: a.field_beta,
+            ..Default::default()
+        },
+        flags: RunConfig {
+            cosmology: a.cosmology.choice(),
+            frame: a.frame.choice(),
+            conventions: a.conventions.choice(),
+            ..Default::default()
+        },
+        force: a.force,
+        command_line: std::env::args().collect::<Vec<_>>().join(" "),
+    })
+    .map_err(|e| anyhow!(e))?;
+    let n = run_mock(&plan).map_err(|e| anyhow!(e))?;
     println!(
-        "wrote {} objects of '{}' to {}",
-        mock.len(),
-        spec.name,
+        "wrote {n} objects of '{}' to {}",
+        plan.spec.name,
         a.output.display()
     );
     Ok(())

@@ -4,7 +4,8 @@
 use clap::{Args, ValueEnum};
 
 use flowsift::settings::{
-    BoostMethod, ConventionChoice, CosmologyChoice, DlConvention, FrameChoice, LengthUnit,
+    AngleUnit, BoostMethod, ColumnChoice, ConventionChoice, CosmologyChoice, DistanceKind,
+    DlConvention, FrameChoice, LengthUnit, RedshiftUnit,
 };
 
 /// Cosmology flags.
@@ -179,6 +180,131 @@ impl ConventionFlags {
                 LengthUnitArg::MpcOverH => LengthUnit::MpcOverH,
             }),
             sigma_star: self.sigma_star,
+        }
+    }
+}
+
+/// Column flags of every command that reads a catalogue: where the position and the
+/// redshift are.
+#[derive(Debug, Clone, Default, Args)]
+pub struct SkyRedshiftFlags {
+    /// Right-ascension column (default ra).
+    #[arg(long = "ra-column", value_name = "NAME", help_heading = "Columns")]
+    pub ra: Option<String>,
+    /// Declination column (default dec).
+    #[arg(long = "dec-column", value_name = "NAME", help_heading = "Columns")]
+    pub dec: Option<String>,
+    /// Unit of ra/dec: deg, rad or sexagesimal (default: deg, or sexagesimal for text).
+    #[arg(
+        long = "angle-unit",
+        value_enum,
+        value_name = "UNIT",
+        help_heading = "Columns"
+    )]
+    pub angle_unit: Option<AngleArg>,
+    /// Heliocentric redshift column (default z_helio, or cz_helio).
+    #[arg(long = "z-column", value_name = "NAME", help_heading = "Columns")]
+    pub z: Option<String>,
+    /// Unit of the redshift column and its error: z or cz (km/s).
+    #[arg(
+        long = "z-unit",
+        value_enum,
+        value_name = "UNIT",
+        help_heading = "Columns"
+    )]
+    pub z_unit: Option<ZUnitArg>,
+    /// Redshift-error column (default z_err, or cz_err).
+    #[arg(long = "z-err-column", value_name = "NAME", help_heading = "Columns")]
+    pub z_err: Option<String>,
+}
+
+/// Column flags of the commands that read a distance.
+#[derive(Debug, Clone, Default, Args)]
+pub struct DistanceFlags {
+    /// Distance column (default: whichever of mu, dl, dc, eta exists).
+    #[arg(
+        long = "distance-column",
+        value_name = "NAME",
+        help_heading = "Columns"
+    )]
+    pub distance: Option<String>,
+    /// What the distance column holds: mu (mag), dl or dc (Mpc or Mpc/h), eta.
+    #[arg(
+        long = "distance-kind",
+        value_enum,
+        value_name = "KIND",
+        help_heading = "Columns"
+    )]
+    pub distance_kind: Option<KindArg>,
+    /// Distance-error column (default <distance>_err).
+    #[arg(
+        long = "distance-err-column",
+        value_name = "NAME",
+        help_heading = "Columns"
+    )]
+    pub distance_err: Option<String>,
+    /// Group column (default group_id).
+    #[arg(long = "group-column", value_name = "NAME", help_heading = "Columns")]
+    pub group_id: Option<String>,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum AngleArg {
+    Deg,
+    Rad,
+    Sexagesimal,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum ZUnitArg {
+    Z,
+    Cz,
+}
+
+#[derive(Debug, Clone, Copy, ValueEnum)]
+pub enum KindArg {
+    Mu,
+    Dl,
+    Dc,
+    Eta,
+}
+
+impl SkyRedshiftFlags {
+    /// The flags as a column choice (distance roles left empty).
+    pub fn choice(&self) -> ColumnChoice {
+        ColumnChoice {
+            ra: self.ra.clone(),
+            dec: self.dec.clone(),
+            z: self.z.clone(),
+            z_unit: self.z_unit.map(|u| match u {
+                ZUnitArg::Z => RedshiftUnit::Z,
+                ZUnitArg::Cz => RedshiftUnit::Cz,
+            }),
+            z_err: self.z_err.clone(),
+            angle_unit: self.angle_unit.map(|a| match a {
+                AngleArg::Deg => AngleUnit::Deg,
+                AngleArg::Rad => AngleUnit::Rad,
+                AngleArg::Sexagesimal => AngleUnit::Sexagesimal,
+            }),
+            ..Default::default()
+        }
+    }
+}
+
+impl DistanceFlags {
+    /// The distance roles added to `base`.
+    pub fn add_to(&self, base: ColumnChoice) -> ColumnChoice {
+        ColumnChoice {
+            distance: self.distance.clone(),
+            distance_kind: self.distance_kind.map(|k| match k {
+                KindArg::Mu => DistanceKind::Mu,
+                KindArg::Dl => DistanceKind::Dl,
+                KindArg::Dc => DistanceKind::Dc,
+                KindArg::Eta => DistanceKind::Eta,
+            }),
+            distance_err: self.distance_err.clone(),
+            group_id: self.group_id.clone(),
+            ..base
         }
     }
 }

@@ -6,8 +6,9 @@ use anyhow::anyhow;
 use clap::{Args, ValueEnum};
 
 use flowsift::catalogue::{read_table, ReadOptions};
-use flowsift::physics::cosmology::CosmologyParams;
+use flowsift::plan::{plan_stage, StageOrder};
 use flowsift::report::{render_all, write_report, ImageFormat, PlotOptions, SkyChoice};
+use flowsift::settings::{InputChoice, RunConfig};
 
 /// Figures (Hubble diagram, v_pec against distance, sky map, normalised velocities) and
 /// DIR/report.html from a flowsift output. Only rows with status ok are drawn.
@@ -29,12 +30,10 @@ pub struct PlotArgs {
     /// INPUT.bulkflow.json when that file exists).
     #[arg(long, value_name = "JSON")]
     pub bulkflow: Option<PathBuf>,
-    /// Hubble constant of the model curve, km/s/Mpc (flat ΛCDM).
-    #[arg(long, value_name = "H", default_value_t = 70.0)]
-    pub h0: f64,
-    /// Matter density Ω_m of the model curve (flat ΛCDM).
-    #[arg(long = "omega-m", value_name = "OM", default_value_t = 0.3)]
-    pub omega_m: f64,
+    /// The model curve's cosmology: by default the one recorded with the input (else flat
+    /// ΛCDM, H0 = 70, Ω_m = 0.3).
+    #[command(flatten)]
+    pub common: super::stages::StageCommon,
     /// FITS HDU to read, by EXTNAME or number (default: the first binary table).
     #[arg(long, value_name = "HDU")]
     pub hdu: Option<String>,
@@ -60,7 +59,6 @@ fn default_bulkflow(input: &Path) -> PathBuf {
 }
 
 pub fn run(a: PlotArgs) -> anyhow::Result<()> {
-    let table = read_table(&a.input, &ReadOptions { hdu: a.hdu.clone() })?;
     let (bulk_path, given) = match &a.bulkflow {
         Some(p) => (Some(p.clone()), true),
         None => {
@@ -68,6 +66,29 @@ pub fn run(a: PlotArgs) -> anyhow::Result<()> {
             (p.exists().then_some(p), false)
         }
     };
+    std::fs::create_dir_all(&a.out_dir).map_err(|e| anyhow!("{}: {e}", a.out_dir.display()))?;
+    let report = a.out_dir.join("report.html");
+    let plan = plan_stage(StageOrder {
+        step: "plot".into(),
+        input: a.input.clone(),
+        output: None,
+        other_outputs: vec![("report".into(), report.clone())],
+        other_inputs: bulk_path
+            .iter()
+            .map(|p| ("bulk-flow JSON".to_string(), p.clone()))
+            .collect(),
+        flags: RunConfig {
+            input: InputChoice { hdu: a.hdu.clone() },
+            cosmology: a.common.cosmology.choice(),
+            ..Default::default()
+        },
+        // The folder's figures and report are replaced, as documented.
+        force: true,
+        override_input_settings: a.common.override_input_settings,
+        command_line: std::env::args().collect::<Vec<_>>().join(" "),
+    })
+    .map_err(|e| anyhow!(e))?;
+    let table = read_table(&a.input, &ReadOptions { hdu: a.hdu.clone() })?;
     let bulkflow = match &bulk_path {
         Some(p) => {
             let text = std::fs::read_to_string(p).map_err(|e| anyhow!("{}: {e}", p.display()))?;
@@ -88,12 +109,11 @@ pub fn run(a: PlotArgs) -> anyhow::Result<()> {
             FormatArg::Both => ImageFormat::Both,
         },
         bulkflow: bulkflow.clone(),
-        cosmology: CosmologyParams::flat_lcdm(a.h0, a.omega_m),
+        cosmology: plan.shared.cosmology.params,
         label: a.input.file_name().map(|n| n.to_string_lossy().to_string()),
         ..PlotOptions::default()
     };
     let figures = render_all(&table, &options, &a.out_dir).map_err(|e| anyhow!(e))?;
-    let report = a.out_dir.join("report.html");
     write_report(&table, &a.input, &figures, bulkflow.as_ref(), &report).map_err(|e| anyhow!(e))?;
     match (&bulk_path, given) {
         (Some(p), true) => println!("bulk flow from {}", p.display()),

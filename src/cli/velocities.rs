@@ -6,17 +6,20 @@ use std::path::PathBuf;
 use std::sync::Mutex;
 
 use anyhow::anyhow;
-use clap::{Args, ValueEnum};
+use clap::Args;
 use indicatif::{ProgressBar, ProgressStyle};
 
 use flowsift::plan::{plan_velocities, VelocityOrder};
 use flowsift::run::{run_velocities, RunSummary, Stage};
 use flowsift::settings::{
-    AngleUnit, BulkFlowChoice, ColumnChoice, DistanceKind, ErrorChoice, ExportChoice, GroupChoice,
-    InputChoice, MalmquistChoice, OutlierChoice, RedshiftUnit, RunConfig,
+    BulkFlowChoice, ErrorChoice, ExportChoice, GroupChoice, InputChoice, MalmquistChoice,
+    OutlierChoice, RunConfig,
 };
 
-use super::options::{BulkFlowFlags, ConventionFlags, CosmologyFlags, FrameFlags, OutlierFlags};
+use super::options::{
+    BulkFlowFlags, ConventionFlags, CosmologyFlags, DistanceFlags, FrameFlags, OutlierFlags,
+    SkyRedshiftFlags,
+};
 
 /// Derive peculiar velocities for every row of a catalogue.
 #[derive(Debug, Args)]
@@ -39,7 +42,9 @@ pub struct VelocitiesArgs {
     #[arg(long, value_name = "NAME|INDEX")]
     pub hdu: Option<String>,
     #[command(flatten)]
-    pub columns: ColumnFlags,
+    pub columns: SkyRedshiftFlags,
+    #[command(flatten)]
+    pub distance_columns: DistanceFlags,
     #[command(flatten)]
     pub cosmology: CosmologyFlags,
     #[command(flatten)]
@@ -120,7 +125,7 @@ impl VelocitiesArgs {
             input: InputChoice {
                 hdu: self.hdu.clone(),
             },
-            columns: self.columns.choice(),
+            columns: self.distance_columns.add_to(self.columns.choice()),
             cosmology: self.cosmology.choice(),
             frame: self.frame.choice(),
             conventions: self.conventions.choice(),
@@ -146,114 +151,6 @@ impl VelocitiesArgs {
             export: self.export.clone().map(|o| ExportChoice {
                 output: Some(o),
                 keep_outliers: None,
-            }),
-        }
-    }
-}
-
-/// Column-mapping flags.
-#[derive(Debug, Clone, Default, Args)]
-pub struct ColumnFlags {
-    /// Right-ascension column (default ra).
-    #[arg(long = "ra-column", value_name = "NAME", help_heading = "Columns")]
-    pub ra: Option<String>,
-    /// Declination column (default dec).
-    #[arg(long = "dec-column", value_name = "NAME", help_heading = "Columns")]
-    pub dec: Option<String>,
-    /// Unit of ra/dec: deg, rad or sexagesimal (default: deg, or sexagesimal for text).
-    #[arg(
-        long = "angle-unit",
-        value_enum,
-        value_name = "UNIT",
-        help_heading = "Columns"
-    )]
-    pub angle_unit: Option<AngleArg>,
-    /// Heliocentric redshift column (default z_helio, or cz_helio).
-    #[arg(long = "z-column", value_name = "NAME", help_heading = "Columns")]
-    pub z: Option<String>,
-    /// Unit of the redshift column and its error: z or cz (km/s).
-    #[arg(
-        long = "z-unit",
-        value_enum,
-        value_name = "UNIT",
-        help_heading = "Columns"
-    )]
-    pub z_unit: Option<ZUnitArg>,
-    /// Redshift-error column (default z_err, or cz_err).
-    #[arg(long = "z-err-column", value_name = "NAME", help_heading = "Columns")]
-    pub z_err: Option<String>,
-    /// Distance column (default: whichever of mu, dl, dc, eta exists).
-    #[arg(
-        long = "distance-column",
-        value_name = "NAME",
-        help_heading = "Columns"
-    )]
-    pub distance: Option<String>,
-    /// What the distance column holds: mu (mag), dl or dc (Mpc or Mpc/h), eta.
-    #[arg(
-        long = "distance-kind",
-        value_enum,
-        value_name = "KIND",
-        help_heading = "Columns"
-    )]
-    pub distance_kind: Option<KindArg>,
-    /// Distance-error column (default <distance>_err).
-    #[arg(
-        long = "distance-err-column",
-        value_name = "NAME",
-        help_heading = "Columns"
-    )]
-    pub distance_err: Option<String>,
-    /// Group column (default group_id).
-    #[arg(long = "group-column", value_name = "NAME", help_heading = "Columns")]
-    pub group_id: Option<String>,
-}
-
-#[derive(Debug, Clone, Copy, ValueEnum)]
-pub enum AngleArg {
-    Deg,
-    Rad,
-    Sexagesimal,
-}
-
-#[derive(Debug, Clone, Copy, ValueEnum)]
-pub enum ZUnitArg {
-    Z,
-    Cz,
-}
-
-#[derive(Debug, Clone, Copy, ValueEnum)]
-pub enum KindArg {
-    Mu,
-    Dl,
-    Dc,
-    Eta,
-}
-
-impl ColumnFlags {
-    pub fn choice(&self) -> ColumnChoice {
-        ColumnChoice {
-            ra: self.ra.clone(),
-            dec: self.dec.clone(),
-            z: self.z.clone(),
-            z_unit: self.z_unit.map(|u| match u {
-                ZUnitArg::Z => RedshiftUnit::Z,
-                ZUnitArg::Cz => RedshiftUnit::Cz,
-            }),
-            z_err: self.z_err.clone(),
-            distance: self.distance.clone(),
-            distance_kind: self.distance_kind.map(|k| match k {
-                KindArg::Mu => DistanceKind::Mu,
-                KindArg::Dl => DistanceKind::Dl,
-                KindArg::Dc => DistanceKind::Dc,
-                KindArg::Eta => DistanceKind::Eta,
-            }),
-            distance_err: self.distance_err.clone(),
-            group_id: self.group_id.clone(),
-            angle_unit: self.angle_unit.map(|a| match a {
-                AngleArg::Deg => AngleUnit::Deg,
-                AngleArg::Rad => AngleUnit::Rad,
-                AngleArg::Sexagesimal => AngleUnit::Sexagesimal,
             }),
         }
     }

@@ -149,6 +149,37 @@ impl MockSpec {
     /// Tully–Fisher-like (20 % distances) and 25 % SN Ia-like (0.15 mag), 1.5 % of objects
     /// with a gross distance error of 2.5–4 mag (to be flagged as outliers). The survey and
     /// its flow are made up, so the truth is known exactly.
+    /// The generic mock of `flowsift mock` without a scenario: 1000 objects at rest but for a
+    /// random 250 km/s, 0.003 < z < 0.1, 20% log-normal distances.
+    pub fn generic() -> Self {
+        MockSpec {
+            name: "mock".into(),
+            n: 1000,
+            seed: 1,
+            bulk_flow: [0.0; 3],
+            sigma_v: 250.0,
+            z_min: 0.003,
+            z_max: 0.1,
+            zone_of_avoidance_deg: None,
+            z_err: 0.0,
+            populations: vec![Population {
+                name: "generic".into(),
+                fraction: 1.0,
+                distance_error: DistanceError::Fractional(0.2),
+            }],
+            outlier_fraction: 0.0,
+            outlier_offset_mag: [2.5, 4.0],
+        }
+    }
+
+    /// A named scenario: `lantern` (the invented demo survey).
+    pub fn scenario(name: &str) -> Result<MockSpec, String> {
+        match name {
+            "lantern" => Ok(MockSpec::demo_survey()),
+            other => Err(format!("unknown scenario '{other}'; known: lantern")),
+        }
+    }
+
     pub fn demo_survey() -> Self {
         Self {
             name: "Lantern Deep Field Survey".into(),

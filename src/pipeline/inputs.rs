@@ -144,6 +144,39 @@ fn worst(status: &mut u8, s: RowStatus) {
     }
 }
 
+/// A redshift column that holds cz (or the reverse) is a whole-column mistake: the median
+/// |value| tells them apart (5 splits z ≤ 5 from c·z ≥ 5 km/s).
+pub(crate) fn check_redshift_unit(
+    z: &[f64],
+    column: &str,
+    unit: RedshiftUnit,
+) -> Result<(), String> {
+    let mut finite: Vec<f64> = z
+        .iter()
+        .copied()
+        .filter(|x| x.is_finite())
+        .map(f64::abs)
+        .collect();
+    if !finite.is_empty() {
+        let mid = finite.len() / 2;
+        let median = *finite.select_nth_unstable_by(mid, |a, b| a.total_cmp(b)).1;
+        match unit {
+            RedshiftUnit::Z if median > 5.0 => {
+                return Err(format!(
+                    "column {column} looks like c·z in km/s (median |value| {median:.4}), not a redshift; pass --z-unit cz"
+                ))
+            }
+            RedshiftUnit::Cz if median < 5.0 => {
+                return Err(format!(
+                    "column {column} looks like a redshift (median |value| {median:.4}), not c·z in km/s; pass --z-unit z"
+                ))
+            }
+            _ => {}
+        }
+    }
+    Ok(())
+}
+
 /// Extract and check the inputs. Errors here are about whole columns (wrong type, a unit
 /// that cannot be right); problems of single rows go into `status`.
 pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'a>, String> {
@@ -180,32 +213,7 @@ pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'
     let (mut z_err, z_err_c) = z_err?;
     let (mut dist_err, dist_err_c) = dist_err?;
 
-    // A redshift column that holds cz (or the reverse) is a whole-column mistake.
-    let mut finite: Vec<f64> = z
-        .iter()
-        .copied()
-        .filter(|x| x.is_finite())
-        .map(f64::abs)
-        .collect();
-    if !finite.is_empty() {
-        let mid = finite.len() / 2;
-        let median = *finite.select_nth_unstable_by(mid, |a, b| a.total_cmp(b)).1;
-        match plan.z_unit {
-            RedshiftUnit::Z if median > 5.0 => {
-                return Err(format!(
-                    "column {} looks like c·z in km/s (median |value| {median:.4}), not a redshift; pass --z-unit cz",
-                    plan.z.column
-                ))
-            }
-            RedshiftUnit::Cz if median < 5.0 => {
-                return Err(format!(
-                    "column {} looks like a redshift (median |value| {median:.4}), not c·z in km/s; pass --z-unit z",
-                    plan.z.column
-                ))
-            }
-            _ => {}
-        }
-    }
+    check_redshift_unit(&z, &plan.z.column, plan.z_unit)?;
     if plan.z_unit == RedshiftUnit::Cz {
         z.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
         z_err.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);

@@ -6,6 +6,7 @@
 
 use serde::Serialize;
 
+use crate::catalogue::units::{parse_unit, Unit};
 use crate::catalogue::Table;
 use crate::physics::cosmology::LengthUnit;
 use crate::physics::estimators::DistanceKind;
@@ -152,16 +153,274 @@ fn find_by_ucd(
     (hits.len() == 1).then(|| hits[0].clone())
 }
 
-fn unit_of(table: &Table, name: &str) -> Option<String> {
+/// The unit card of a column, read by the one unit reader (None: no card, or a blank one).
+fn unit_of(table: &Table, name: &str) -> Option<Unit> {
     table
         .meta
         .get(name)
-        .and_then(|m| m.unit.clone())
-        .map(|u| u.trim().to_string())
+        .and_then(|m| m.unit.as_deref())
+        .filter(|u| !u.trim().is_empty())
+        .map(parse_unit)
 }
 
-fn normalise_unit(u: &str) -> String {
-    u.to_ascii_lowercase().replace([' ', '.', '*'], "")
+fn ucd_of(table: &Table, name: &str) -> Option<String> {
+    table.meta.get(name).and_then(|m| m.ucd.clone())
+}
+
+fn is_error(w: &[String]) -> bool {
+    w.iter().any(|x| x.starts_with("stat.error"))
+}
+
+/// What the user called the flag for a role, for messages.
+const DISTANCE_KIND_FLAG: &str = "--distance-kind (run file: columns.distance_kind)";
+
+/// Roles are found by: a name given by flag or run file; a default name (exact, then
+/// case-insensitive); a UCD that exactly one column carries.
+struct Finder<'a> {
+    table: &'a Table,
+    names: Vec<String>,
+    problems: Vec<String>,
+}
+
+impl<'a> Finder<'a> {
+    fn new(table: &'a Table) -> Finder<'a> {
+        Finder {
+            table,
+            names: table
+                .frame
+                .get_column_names()
+                .iter()
+                .map(|s| s.to_string())
+                .collect(),
+            problems: vec![],
+        }
+    }
+
+    fn named(&mut self, role: &str, given: &str) -> Option<Resolved> {
+        match find_name(&self.names, given) {
+            Some(c) => Some(Resolved {
+                column: c,
+                found_by: "named by flag or run file".into(),
+            }),
+            None => {
+                self.problems
+                    .push(format!("the {role} column '{given}' is not in the file"));
+                None
+            }
+        }
+    }
+
+    fn by_default(&self, defaults: &[&str]) -> Option<Resolved> {
+        defaults.iter().find_map(|d| {
+            find_name(&self.names, d).map(|c| Resolved {
+                column: c,
+                found_by: "default name".into(),
+            })
+        })
+    }
+
+    fn by_ucd(&self, pred: &dyn Fn(&[String]) -> bool) -> Option<Resolved> {
+        find_by_ucd(self.table, &self.names, pred).map(|c| Resolved {
+            found_by: format!("UCD {}", ucd_of(self.table, &c).unwrap_or_default()),
+            column: c,
+        })
+    }
+
+    /// A role the run cannot do without.
+    fn required(
+        &mut self,
+        role: &str,
+        given: &Option<String>,
+        defaults: &[&str],
+        ucd: &dyn Fn(&[String]) -> bool,
+    ) -> Option<Resolved> {
+        if let Some(g) = given {
+            return self.named(role, g);
+        }
+        let found = self.by_default(defaults).or_else(|| self.by_ucd(ucd));
+        if found.is_none() {
+            self.problems.push(format!(
+                "no {role} column: expected one named {} (or a flag naming it)",
+                defaults.join(" or ")
+            ));
+        }
+        found
+    }
+
+    /// A role the run can do without.
+    fn optional(
+        &mut self,
+        role: &str,
+        given: &Option<String>,
+        defaults: &[&str],
+        ucd: &dyn Fn(&[String]) -> bool,
+    ) -> Option<Resolved> {
+        match given {
+            Some(g) => self.named(role, g),
+            None => self.by_default(defaults).or_else(|| self.by_ucd(ucd)),
+        }
+    }
+}
+
+/// The sky position and redshift of each row, as every catalogue command reads them.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct RedshiftColumns {
+    pub ra: Resolved,
+    pub dec: Resolved,
+    pub z: Resolved,
+    pub z_unit: RedshiftUnit,
+    pub z_err: Option<Resolved>,
+    /// None: decide per column (text → sexagesimal, numbers → degrees).
+    pub angle_unit: Option<AngleUnit>,
+}
+
+fn resolve_redshift_part(f: &mut Finder<'_>, choice: &ColumnChoice) -> Option<RedshiftColumns> {
+    let ra = f.required("right-ascension", &choice.ra, &["ra"], &|w| {
+        w.iter().any(|x| x == "pos.eq.ra")
+    });
+    let dec = f.required("declination", &choice.dec, &["dec"], &|w| {
+        w.iter().any(|x| x == "pos.eq.dec")
+    });
+    let z = f.required("redshift", &choice.z, &["z_helio", "cz_helio"], &|w| {
+        w.iter().any(|x| x == "src.redshift") && !is_error(w)
+    });
+
+    // Redshift unit: the flag, checked against the unit card; else the card; else the name.
+    let z_card = z.as_ref().and_then(|r| unit_of(f.table, &r.column));
+    let z_unit = match (&choice.z_unit, &z, &z_card) {
+        (Some(RedshiftUnit::Z), Some(r), Some(Unit::KmPerS)) => {
+            f.problems.push(format!(
+                "the redshift column '{}' has unit 'km/s' (c·z) in the file, but --z-unit z says it holds z; drop --z-unit or give --z-unit cz",
+                r.column
+            ));
+            RedshiftUnit::Z
+        }
+        (Some(u), ..) => *u,
+        (None, _, Some(Unit::KmPerS)) => RedshiftUnit::Cz,
+        (None, Some(r), _) if r.column.eq_ignore_ascii_case("cz_helio") => RedshiftUnit::Cz,
+        _ => RedshiftUnit::Z,
+    };
+    let z_err_defaults: Vec<String> = match &z {
+        Some(r) => vec![
+            format!("{}_err", r.column),
+            if z_unit == RedshiftUnit::Cz {
+                "cz_err".into()
+            } else {
+                "z_err".into()
+            },
+        ],
+        None => vec!["z_err".into()],
+    };
+    let defaults: Vec<&str> = z_err_defaults.iter().map(String::as_str).collect();
+    let z_err = f.optional("redshift-error", &choice.z_err, &defaults, &|w| {
+        w.iter().any(|x| x == "src.redshift") && is_error(w)
+    });
+
+    // Angle unit: the flag, checked against the card of RA; else the card.
+    let ra_card = ra.as_ref().and_then(|r| unit_of(f.table, &r.column));
+    let angle_unit = match (choice.angle_unit, &ra_card) {
+        (Some(AngleUnit::Deg), Some(Unit::Rad)) | (Some(AngleUnit::Rad), Some(Unit::Deg)) => {
+            f.problems.push(format!(
+                "the right-ascension column '{}' has unit '{}' in the file, which --angle-unit contradicts; drop --angle-unit or correct it",
+                ra.as_ref().map(|r| r.column.as_str()).unwrap_or("?"),
+                ra_card.as_ref().map(Unit::label).unwrap_or("")
+            ));
+            choice.angle_unit
+        }
+        (Some(u), _) => Some(u),
+        (None, Some(Unit::Rad)) => Some(AngleUnit::Rad),
+        (None, Some(Unit::Deg)) => Some(AngleUnit::Deg),
+        _ => None,
+    };
+    Some(RedshiftColumns {
+        ra: ra?,
+        dec: dec?,
+        z: z?,
+        z_unit,
+        z_err,
+        angle_unit,
+    })
+}
+
+fn listing(f: &Finder<'_>) -> String {
+    f.names.join(", ")
+}
+
+fn report(f: &Finder<'_>) -> Result<(), String> {
+    if f.problems.is_empty() {
+        Ok(())
+    } else {
+        Err(format!(
+            "{}\n  columns in the file: {}",
+            f.problems.join("\n  "),
+            listing(f)
+        ))
+    }
+}
+
+/// Resolve positions and redshifts only (for `correct`, which needs no distance).
+pub fn resolve_redshift_columns(
+    table: &Table,
+    choice: &ColumnChoice,
+) -> Result<RedshiftColumns, String> {
+    let mut f = Finder::new(table);
+    let r = resolve_redshift_part(&mut f, choice);
+    report(&f)?;
+    r.ok_or_else(|| "the columns could not be resolved".into())
+}
+
+/// What a distance kind's column must hold, for messages.
+fn kind_words(kind: DistanceKind) -> &'static str {
+    match kind {
+        DistanceKind::Mu => "a distance modulus in mag",
+        DistanceKind::Dl => "a luminosity distance in Mpc",
+        DistanceKind::Dc => "a comoving distance in Mpc",
+        DistanceKind::Eta => "a log-distance ratio (no unit)",
+        #[allow(unreachable_patterns)]
+        _ => "a distance",
+    }
+}
+
+/// Does what the file says of a column (its unit card and UCD) contradict `kind`?
+fn kind_conflict(table: &Table, column: &str, kind: DistanceKind) -> Option<String> {
+    let unit = unit_of(table, column);
+    let distmod = ucd_of(table, column)
+        .map(|u| ucd_words(&u).iter().any(|w| w == "phot.mag.distmod"))
+        .unwrap_or(false);
+    let fits = match (&unit, kind) {
+        (Some(Unit::Mag), DistanceKind::Mu) => true,
+        (Some(Unit::Mag), _) => false,
+        (Some(u), DistanceKind::Mu) if u.is_length() || *u == Unit::KmPerS => false,
+        (Some(u), DistanceKind::Eta) if u.is_length() || *u == Unit::KmPerS => false,
+        (Some(Unit::KmPerS), _) => false,
+        _ => true,
+    };
+    if !fits {
+        return Some(format!(
+            "the distance column '{column}' has unit '{}' in the file, but it is read as {} ({DISTANCE_KIND_FLAG} or its default); give the kind that matches the unit",
+            unit.as_ref().map(Unit::label).unwrap_or(""),
+            kind_words(kind)
+        ));
+    }
+    if distmod && kind != DistanceKind::Mu {
+        return Some(format!(
+            "the distance column '{column}' has UCD phot.mag.distMod (a distance modulus), but it is read as {} ({DISTANCE_KIND_FLAG}); give --distance-kind mu",
+            kind_words(kind)
+        ));
+    }
+    None
+}
+
+/// The kind a column's unit card or UCD says it holds, where that is unambiguous.
+fn kind_from_file(table: &Table, column: &str) -> Option<DistanceKind> {
+    let distmod = ucd_of(table, column)
+        .map(|u| ucd_words(&u).iter().any(|w| w == "phot.mag.distmod"))
+        .unwrap_or(false);
+    match unit_of(table, column) {
+        Some(Unit::Mag) => Some(DistanceKind::Mu),
+        _ if distmod => Some(DistanceKind::Mu),
+        _ => None,
+    }
 }
 
 /// Resolve the mapping. `length_unit` is the user's choice (flag/run file), if any.
@@ -170,187 +429,71 @@ pub fn resolve_columns(
     choice: &ColumnChoice,
     length_unit: Option<LengthUnit>,
 ) -> Result<ColumnPlan, String> {
-    let names: Vec<String> = table
-        .frame
-        .get_column_names()
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
-    let listing = names.join(", ");
-    let mut problems: Vec<String> = vec![];
-    let by_flag = "named by flag or run file".to_string();
-
-    let required = |role: &str,
-                    given: &Option<String>,
-                    default: &[&str],
-                    ucd: &dyn Fn(&[String]) -> bool,
-                    problems: &mut Vec<String>|
-     -> Option<Resolved> {
-        if let Some(g) = given {
-            return match find_name(&names, g) {
-                Some(c) => Some(Resolved {
-                    column: c,
-                    found_by: by_flag.clone(),
-                }),
-                None => {
-                    problems.push(format!("the {role} column '{g}' is not in the file"));
-                    None
-                }
-            };
-        }
-        for d in default {
-            if let Some(c) = find_name(&names, d) {
-                return Some(Resolved {
-                    column: c,
-                    found_by: "default name".into(),
-                });
-            }
-        }
-        if let Some(c) = find_by_ucd(table, &names, ucd) {
-            let u = table
-                .meta
-                .get(&c)
-                .and_then(|m| m.ucd.clone())
-                .unwrap_or_default();
-            return Some(Resolved {
-                column: c,
-                found_by: format!("UCD {u}"),
-            });
-        }
-        problems.push(format!(
-            "no {role} column: expected one named {} (or a flag naming it)",
-            default.join(" or ")
-        ));
-        None
-    };
-
-    let is_err = |w: &[String]| w.iter().any(|x| x.starts_with("stat.error"));
-    let ra = required(
-        "right-ascension",
-        &choice.ra,
-        &["ra"],
-        &|w| w.iter().any(|x| x == "pos.eq.ra"),
-        &mut problems,
-    );
-    let dec = required(
-        "declination",
-        &choice.dec,
-        &["dec"],
-        &|w| w.iter().any(|x| x == "pos.eq.dec"),
-        &mut problems,
-    );
-    let z = required(
-        "redshift",
-        &choice.z,
-        &["z_helio", "cz_helio"],
-        &|w| w.iter().any(|x| x == "src.redshift") && !is_err(w),
-        &mut problems,
-    );
-
-    // Redshift unit: flag, else the default name, else TUNIT.
-    let z_unit = match (&choice.z_unit, &z) {
-        (Some(u), _) => *u,
-        (None, Some(r)) => {
-            let unit = unit_of(table, &r.column).map(|u| normalise_unit(&u));
-            if matches!(
-                unit.as_deref(),
-                Some("km/s") | Some("kms-1") | Some("km/sec")
-            ) || r.column.eq_ignore_ascii_case("cz_helio")
-            {
-                RedshiftUnit::Cz
-            } else {
-                RedshiftUnit::Z
-            }
-        }
-        (None, None) => RedshiftUnit::Z,
-    };
+    let mut f = Finder::new(table);
+    let sky = resolve_redshift_part(&mut f, choice);
 
     // Distance: exactly one.
-    let distance_kinds = [
+    let kinds = [
         DistanceKind::Mu,
         DistanceKind::Dl,
         DistanceKind::Dc,
         DistanceKind::Eta,
     ];
     let (distance, distance_kind) = match &choice.distance {
-        Some(g) => match find_name(&names, g) {
-            Some(c) => {
+        Some(g) => match f.named("distance", g) {
+            Some(r) => {
                 let kind = choice
                     .distance_kind
                     .or_else(|| {
-                        distance_kinds
+                        kinds
                             .iter()
                             .copied()
-                            .find(|k| c.eq_ignore_ascii_case(k.name()))
+                            .find(|k| r.column.eq_ignore_ascii_case(k.name()))
                     })
-                    .or_else(|| {
-                        unit_of(table, &c).and_then(|u| match normalise_unit(&u).as_str() {
-                            "mag" => Some(DistanceKind::Mu),
-                            _ => None,
-                        })
-                    });
+                    .or_else(|| kind_from_file(table, &r.column));
                 match kind {
-                    Some(k) => (
-                        Some(Resolved {
-                            column: c,
-                            found_by: by_flag.clone(),
-                        }),
-                        Some(k),
-                    ),
+                    Some(k) => (Some(r), Some(k)),
                     None => {
-                        problems.push(format!(
-                            "say what the distance column '{c}' holds with --distance-kind mu|dl|dc|eta"
+                        f.problems.push(format!(
+                            "say what the distance column '{}' holds with --distance-kind mu|dl|dc|eta",
+                            r.column
                         ));
                         (None, None)
                     }
                 }
             }
-            None => {
-                problems.push(format!("the distance column '{g}' is not in the file"));
-                (None, None)
-            }
+            None => (None, None),
         },
         None => {
-            let present: Vec<(String, DistanceKind)> = distance_kinds
+            let present: Vec<(String, DistanceKind)> = kinds
                 .iter()
-                .filter_map(|k| find_name(&names, k.name()).map(|c| (c, *k)))
+                .filter_map(|k| find_name(&f.names, k.name()).map(|c| (c, *k)))
                 .collect();
             match present.len() {
                 1 => {
                     let (c, k) = present[0].clone();
-                    let k = choice.distance_kind.unwrap_or(k);
                     (
                         Some(Resolved {
                             column: c,
                             found_by: "default name".into(),
                         }),
-                        Some(k),
+                        Some(choice.distance_kind.unwrap_or(k)),
                     )
                 }
-                0 => {
-                    if let Some(c) = find_by_ucd(table, &names, |w| {
-                        w.iter().any(|x| x == "phot.mag.distmod") && !is_err(w)
-                    }) {
-                        let u = table
-                            .meta
-                            .get(&c)
-                            .and_then(|m| m.ucd.clone())
-                            .unwrap_or_default();
-                        (
-                            Some(Resolved {
-                                column: c,
-                                found_by: format!("UCD {u}"),
-                            }),
-                            Some(choice.distance_kind.unwrap_or(DistanceKind::Mu)),
-                        )
-                    } else {
-                        problems.push("no distance column: expected one named mu, dl, dc or eta (or --distance-column with --distance-kind)".into());
+                0 => match f.by_ucd(&|w| w.iter().any(|x| x == "phot.mag.distmod") && !is_error(w))
+                {
+                    Some(r) => (
+                        Some(r),
+                        Some(choice.distance_kind.unwrap_or(DistanceKind::Mu)),
+                    ),
+                    None => {
+                        f.problems.push("no distance column: expected one named mu, dl, dc or eta (or --distance-column with --distance-kind)".into());
                         (None, None)
                     }
-                }
+                },
                 _ => {
                     let found: Vec<_> = present.iter().map(|p| p.0.clone()).collect();
-                    problems.push(format!(
+                    f.problems.push(format!(
                         "several distance columns ({}): choose one with --distance-column",
                         found.join(", ")
                     ));
@@ -359,114 +502,74 @@ pub fn resolve_columns(
             }
         }
     };
-
-    let optional = |given: &Option<String>,
-                    defaults: &[String],
-                    problems: &mut Vec<String>,
-                    role: &str|
-     -> Option<Resolved> {
-        if let Some(g) = given {
-            return match find_name(&names, g) {
-                Some(c) => Some(Resolved {
-                    column: c,
-                    found_by: by_flag.clone(),
-                }),
-                None => {
-                    problems.push(format!("the {role} column '{g}' is not in the file"));
-                    None
-                }
-            };
-        }
-        defaults
-            .iter()
-            .find_map(|d| find_name(&names, d))
-            .map(|c| Resolved {
-                column: c,
-                found_by: "default name".into(),
-            })
-    };
-    let z_err_defaults: Vec<String> = match (&z, z_unit) {
-        (Some(r), _) => vec![
-            format!("{}_err", r.column),
-            if z_unit == RedshiftUnit::Cz {
-                "cz_err".into()
-            } else {
-                "z_err".into()
-            },
-        ],
-        _ => vec!["z_err".into()],
-    };
-    let mut z_err = optional(
-        &choice.z_err,
-        &z_err_defaults,
-        &mut problems,
-        "redshift-error",
-    );
-    if z_err.is_none() && choice.z_err.is_none() {
-        if let Some(c) = find_by_ucd(table, &names, |w| {
-            w.iter().any(|x| x == "src.redshift") && is_err(w)
-        }) {
-            z_err = Some(Resolved {
-                column: c,
-                found_by: "UCD".into(),
-            });
+    if let (Some(d), Some(k)) = (&distance, distance_kind) {
+        if let Some(p) = kind_conflict(table, &d.column, k) {
+            f.problems.push(p);
         }
     }
+
+    // The distance error: `<distance>_err` by name, else the one column whose UCD is the
+    // error of the distance's own UCD (e.g. stat.error;phot.mag.distMod).
     let distance_err = match &distance {
-        Some(d) => optional(
-            &choice.distance_err,
-            &[format!("{}_err", d.column)],
-            &mut problems,
-            "distance-error",
-        ),
+        Some(d) => {
+            let own: Vec<String> = ucd_of(table, &d.column)
+                .map(|u| ucd_words(&u))
+                .unwrap_or_default()
+                .into_iter()
+                .filter(|w| !w.starts_with("stat.") && !w.starts_with("meta."))
+                .collect();
+            let own = if own.is_empty() && distance_kind == Some(DistanceKind::Mu) {
+                vec!["phot.mag.distmod".to_string()]
+            } else {
+                own
+            };
+            let default = format!("{}_err", d.column);
+            f.optional("distance-error", &choice.distance_err, &[&default], &|w| {
+                is_error(w) && !own.is_empty() && own.iter().all(|o| w.contains(o))
+            })
+        }
         None => None,
     };
-    let group_id = optional(
-        &choice.group_id,
-        &["group_id".to_string()],
-        &mut problems,
-        "group",
-    );
+    let group_id = f.optional("group", &choice.group_id, &["group_id"], &|_| false);
 
-    // Length unit: flag, else TUNIT of the distance column.
-    let length_unit = length_unit.unwrap_or_else(|| match (&distance, distance_kind) {
-        (Some(d), Some(DistanceKind::Dl | DistanceKind::Dc)) => match unit_of(table, &d.column)
-            .map(|u| normalise_unit(&u))
-            .as_deref()
-        {
-            Some("mpc/h") | Some("h-1mpc") | Some("mpch-1") | Some("mpc/h70") => {
-                LengthUnit::MpcOverH
-            }
-            _ => LengthUnit::Mpc,
-        },
-        _ => LengthUnit::Mpc,
-    });
-    let angle_unit = choice.angle_unit.or_else(|| {
-        ra.as_ref()
-            .and_then(|r| unit_of(table, &r.column))
-            .and_then(|u| match normalise_unit(&u).as_str() {
-                "rad" => Some(AngleUnit::Rad),
-                _ => None,
-            })
-    });
+    // Length unit: the flag, checked against the unit card of a dl/dc column; else the card.
+    let card = match (&distance, distance_kind) {
+        (Some(d), Some(DistanceKind::Dl | DistanceKind::Dc)) => unit_of(table, &d.column),
+        _ => None,
+    };
+    let from_card = match card {
+        Some(Unit::Mpc) => Some(LengthUnit::Mpc),
+        Some(Unit::MpcOverH) => Some(LengthUnit::MpcOverH),
+        _ => None,
+    };
+    let length_unit = match (length_unit, from_card) {
+        (Some(u), Some(c)) if u != c => {
+            f.problems.push(format!(
+                "the distance column '{}' has unit '{}' in the file, but --length-unit says {}; drop --length-unit or correct it",
+                distance.as_ref().map(|d| d.column.as_str()).unwrap_or("?"),
+                c.label(),
+                u.label()
+            ));
+            u
+        }
+        (Some(u), _) => u,
+        (None, Some(c)) => c,
+        (None, None) => LengthUnit::Mpc,
+    };
 
-    if !problems.is_empty() {
-        return Err(format!(
-            "{}\n  columns in the file: {listing}",
-            problems.join("\n  ")
-        ));
-    }
+    report(&f)?;
+    let sky = sky.ok_or("the columns could not be resolved")?;
     Ok(ColumnPlan {
-        ra: ra.expect("checked"),
-        dec: dec.expect("checked"),
-        z: z.expect("checked"),
-        z_unit,
-        z_err,
-        distance: distance.expect("checked"),
-        distance_kind: distance_kind.expect("checked"),
+        ra: sky.ra,
+        dec: sky.dec,
+        z: sky.z,
+        z_unit: sky.z_unit,
+        z_err: sky.z_err,
+        distance: distance.ok_or("no distance column")?,
+        distance_kind: distance_kind.ok_or("no distance kind")?,
         distance_err,
         group_id,
-        angle_unit,
+        angle_unit: sky.angle_unit,
         length_unit,
     })
 }

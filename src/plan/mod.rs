@@ -5,7 +5,10 @@
 
 pub mod columns;
 pub mod common;
+pub mod correct;
+pub mod galaxy;
 pub mod inherit;
+pub mod mock;
 pub mod paths;
 pub mod run_file;
 pub mod stage;
@@ -13,6 +16,8 @@ pub mod velocities;
 
 pub use columns::{ColumnPlan, Resolved};
 pub use common::Shared;
+pub use correct::{plan_correct, CorrectOrder, CorrectPlan};
+pub use mock::{plan_field, plan_mock, FieldOrder, FieldPlan, MockOrder, MockOverrides, MockPlan};
 pub use paths::Files;
 pub use stage::{plan_stage, StageOrder, StagePlan};
 pub use velocities::{plan_velocities, sibling_json, sibling_path, VelocityOrder, VelocityPlan};

@@ -8,40 +8,21 @@ use polars::prelude::*;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::catalogue::{read_table, ColumnMeta, Provenance, ReadOptions, Table, WriteOptions};
+use crate::catalogue::{read_table, ColumnMeta, ReadOptions, Table, WriteOptions};
 use crate::flow::correct::{correct_object, LineOfSight, SearchSettings};
 use crate::physics::constants::C_KM_S;
-use crate::physics::cosmology::{Cosmology, LengthUnit};
-use crate::physics::estimators::DlConvention;
-use crate::physics::field::{FieldAxes, FlowModel};
+use crate::physics::cosmology::LengthUnit;
+use crate::physics::field::FieldAxes;
 use crate::physics::redshift::{Heliocentric, Redshift};
 use crate::physics::restframe::{legacy_additive, BoostMethod};
 use crate::physics::sky::{Direction, Icrs, SkyRotations};
-use crate::pipeline::inputs::{read_numbers, Reading};
-use crate::plan::columns::find_name;
-use crate::settings::{AngleUnit, RedshiftUnit};
-use crate::settings::{CosmologyChoice, FrameChoice};
+use crate::pipeline::inputs::{check_redshift_unit, read_numbers, Reading};
+use crate::plan::columns::resolve_redshift_columns;
+use crate::plan::CorrectPlan;
+use crate::settings::RedshiftUnit;
 
-/// What to correct, and with what.
-pub struct CorrectRequest<'a> {
-    pub input: PathBuf,
-    pub output: PathBuf,
-    pub force: bool,
-    pub command_line: String,
-    /// Column names (defaults: ra, dec, z_helio or cz_helio, z_err).
-    pub ra: Option<String>,
-    pub dec: Option<String>,
-    pub z: Option<String>,
-    pub z_unit: Option<RedshiftUnit>,
-    pub z_err: Option<String>,
-    pub angle_unit: Option<AngleUnit>,
-    pub cosmology: CosmologyChoice,
-    pub frame: FrameChoice,
-    pub convention: DlConvention,
-    pub model: &'a FlowModel,
-    /// How the model was made, for provenance.
-    pub model_description: String,
-}
+use super::cosmology_reaching;
+use super::model::build_model;
 
 /// What a `correct` run did.
 #[derive(Debug, Clone, Serialize)]
@@ -52,101 +33,48 @@ pub struct CorrectSummary {
     pub cautions: Vec<String>,
 }
 
-fn column(
-    names: &[String],
-    given: &Option<String>,
-    defaults: &[&str],
-    role: &str,
-) -> Result<String, String> {
-    if let Some(g) = given {
-        return find_name(names, g).ok_or_else(|| {
-            format!(
-                "the {role} column '{g}' is not in the file; columns: {}",
-                names.join(", ")
-            )
-        });
-    }
-    defaults
-        .iter()
-        .find_map(|d| find_name(names, d))
-        .ok_or_else(|| {
-            format!(
-                "no {role} column (expected {}); columns: {}",
-                defaults.join(" or "),
-                names.join(", ")
-            )
-        })
-}
-
-/// Run `correct`.
-pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
-    let resolved = req
-        .cosmology
-        .resolve()
-        .map_err(|e| format!("cosmology: {e}"))?;
-    let frames = req
-        .frame
-        .resolve()
-        .map_err(|e| format!("rest frame: {e}"))?;
-    if req.output.exists() && !req.force {
-        return Err(format!(
-            "{}: output exists; pass --force to replace it",
-            req.output.display()
-        ));
-    }
-    // A delimited output copies the input's columns from its text when it can.
-    let delimited = |p: &std::path::Path| {
-        matches!(
-            crate::catalogue::Format::from_path(p),
-            Ok(crate::catalogue::Format::Csv | crate::catalogue::Format::Tsv)
-        )
+/// Run `correct` as `plan` says.
+pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, String> {
+    let shared = &plan.shared;
+    let resolved = &shared.cosmology;
+    let frames = &shared.frames;
+    let (model, model_description) = build_model(&plan.model, &resolved.params)?.ok_or(
+        "give a velocity model: --field FILE, --bulk VX,VY,VZ, --infall … or --external VX,VY,VZ",
+    )?;
+    let options = ReadOptions {
+        hdu: plan.config().input.hdu.clone(),
     };
-    let (table, source_text) = if delimited(&req.output) {
-        crate::catalogue::read_table_keeping_text(&req.input, &ReadOptions::default())
+    // A delimited output copies the input's columns from its text when it can.
+    let (table, source_text) = if matches!(
+        crate::catalogue::Format::from_path(&plan.output),
+        Ok(crate::catalogue::Format::Csv | crate::catalogue::Format::Tsv)
+    ) {
+        crate::catalogue::read_table_keeping_text(&plan.input, &options)
             .map_err(|e| e.to_string())?
     } else {
         (
-            read_table(&req.input, &ReadOptions::default()).map_err(|e| e.to_string())?,
+            read_table(&plan.input, &options).map_err(|e| e.to_string())?,
             None,
         )
     };
-    let names: Vec<String> = table
-        .frame
-        .get_column_names()
-        .iter()
-        .map(|s| s.to_string())
-        .collect();
-    let where_ = |e: String| format!("{}: {e}", req.input.display());
-    let ra_c = column(&names, &req.ra, &["ra"], "right-ascension").map_err(where_)?;
-    let dec_c = column(&names, &req.dec, &["dec"], "declination").map_err(where_)?;
-    let z_c = column(&names, &req.z, &["z_helio", "cz_helio"], "redshift").map_err(where_)?;
-    let z_unit = req
-        .z_unit
-        .unwrap_or(if z_c.eq_ignore_ascii_case("cz_helio") {
-            RedshiftUnit::Cz
-        } else {
-            RedshiftUnit::Z
-        });
-    let z_err_c = match &req.z_err {
-        Some(_) => Some(column(&names, &req.z_err, &[], "redshift-error").map_err(where_)?),
-        None => find_name(
-            &names,
-            if z_unit == RedshiftUnit::Cz {
-                "cz_err"
-            } else {
-                "z_err"
-            },
-        ),
-    };
-    let (ra, ra_code) = read_numbers(&table, &ra_c, Reading::Ra(req.angle_unit)).map_err(where_)?;
-    let (dec, dec_code) =
-        read_numbers(&table, &dec_c, Reading::Dec(req.angle_unit)).map_err(where_)?;
-    let (mut z, z_code) = read_numbers(&table, &z_c, Reading::Number).map_err(where_)?;
-    let (mut z_err, _) = match &z_err_c {
-        Some(c) => read_numbers(&table, c, Reading::Number).map_err(where_)?,
+    let where_ = |e: String| format!("{}: {e}", plan.input.display());
+    let columns = resolve_redshift_columns(&table, &plan.config().columns).map_err(where_)?;
+    let (ra, ra_code) = read_numbers(&table, &columns.ra.column, Reading::Ra(columns.angle_unit))
+        .map_err(where_)?;
+    let (dec, dec_code) = read_numbers(
+        &table,
+        &columns.dec.column,
+        Reading::Dec(columns.angle_unit),
+    )
+    .map_err(where_)?;
+    let (mut z, z_code) =
+        read_numbers(&table, &columns.z.column, Reading::Number).map_err(where_)?;
+    check_redshift_unit(&z, &columns.z.column, columns.z_unit).map_err(where_)?;
+    let (mut z_err, _) = match &columns.z_err {
+        Some(c) => read_numbers(&table, &c.column, Reading::Number).map_err(where_)?,
         None => (vec![0.0; z.len()].into(), vec![0; z.len()]),
     };
-    if z_unit == RedshiftUnit::Cz {
+    if columns.z_unit == RedshiftUnit::Cz {
         z.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
         z_err.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
     }
@@ -155,12 +83,10 @@ pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
         .copied()
         .filter(|x| x.is_finite())
         .fold(0.0, f64::max);
-    let cosmology = Cosmology::new(resolved.params).map_err(|e| e.to_string())?;
-    cosmology
-        .ensure_covers(((1.0 + z_top) * 1.05 - 1.0).min(cosmology.z_max()))
-        .map_err(|e| format!("cosmology: {e}"))?;
+    let cosmology = cosmology_reaching(resolved.params, z_top)?;
+    let convention = shared.convention;
 
-    let model = req.model;
+    let model = &model;
     let rot = SkyRotations::default();
     let model_unit = model.length_unit().unwrap_or(LengthUnit::Mpc);
     let model_axes = model.axes().unwrap_or(FieldAxes::Supergalactic);
@@ -185,7 +111,7 @@ pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
     let settings = SearchSettings {
         step,
         length_per_mpc,
-        convention: req.convention,
+        convention,
     };
     let n = z.len();
     let results: Vec<Option<crate::flow::correct::Correction>> = (0..n)
@@ -286,43 +212,45 @@ pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
     );
     let frame = frame.hstack(&cols).map_err(|e| e.to_string())?;
     let out = Table { frame, meta };
-    let cautions = vec![
-        format!("Velocity model: {}.", req.model_description),
+    let mut cautions = shared.cautions();
+    cautions.extend([
+        format!("Velocity model: {model_description}."),
         format!(
             "z_cos_model removes the model's radial velocity at the self-consistent position by exact composition; z_cos_model_err includes σ_v = {} km/s and the redshift error; mu_pec_err is the distance-modulus error it implies ({} convention).",
             model.sigma_v,
-            req.convention.name()
+            convention.name()
         ),
-        format!("Cosmology for positions: {}.", resolved.source),
-    ];
-    let provenance = Provenance {
-        entries: vec![
-            (
-                "software".into(),
-                format!("flowsift {}", env!("CARGO_PKG_VERSION")),
-            ),
-            ("command".into(), req.command_line.clone()),
-            ("input".into(), req.input.display().to_string()),
-            ("model".into(), req.model_description.clone()),
-            (
-                "cosmology".into(),
-                serde_json::to_string(&resolved).unwrap_or_default(),
-            ),
-            (
-                "cmb_apex".into(),
-                serde_json::to_string(&frames.cmb_apex).unwrap_or_default(),
-            ),
-            ("dl_convention".into(), req.convention.name().into()),
-            ("cautions".into(), cautions.join(" | ")),
-        ],
+    ]);
+    let inputs = plan.inputs();
+    let input_refs: Vec<(&str, &std::path::Path)> =
+        inputs.iter().map(|(r, p)| (*r, p.as_path())).collect();
+    let mut record = shared.record("correct", &plan.command_line, &input_refs);
+    record.settings.input = plan.config().input.clone();
+    record.settings.columns = crate::settings::ColumnChoice {
+        ra: Some(columns.ra.column.clone()),
+        dec: Some(columns.dec.column.clone()),
+        z: Some(columns.z.column.clone()),
+        z_unit: Some(columns.z_unit),
+        z_err: columns.z_err.as_ref().map(|r| r.column.clone()),
+        angle_unit: columns.angle_unit,
+        ..Default::default()
     };
+    record
+        .details
+        .insert("model".into(), model_description.clone());
+    record.details.insert(
+        "model_settings".into(),
+        serde_json::to_string(&plan.model).unwrap_or_default(),
+    );
+    record.cautions = cautions.clone();
+    let provenance = record.to_provenance();
     crate::catalogue::write_table_with_text(
-        &req.output,
+        &plan.output,
         &out,
         &provenance,
         &WriteOptions {
-            force: req.force,
-            protected: vec![req.input.clone()],
+            force: plan.force,
+            protected: inputs.iter().map(|(_, p)| p.clone()).collect(),
         },
         source_text.as_ref(),
     )
@@ -341,7 +269,7 @@ pub fn run_correct(req: &CorrectRequest<'_>) -> Result<CorrectSummary, String> {
     Ok(CorrectSummary {
         rows: n,
         counts,
-        output: req.output.clone(),
+        output: plan.output.clone(),
         cautions,
     })
 }

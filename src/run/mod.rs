@@ -5,6 +5,11 @@
 //! checked [`VelocityPlan`]; it never prints (progress goes through a callback).
 
 pub mod correct;
+pub mod demo;
+pub mod distances;
+pub mod galaxy;
+pub mod generate;
+pub mod model;
 pub mod stages;
 pub mod standalone;
 
@@ -85,7 +90,7 @@ pub fn cosmology_reaching(
         Cosmology::new(params).map_err(|e| e.to_string())?
     };
     cosmology
-        .ensure_covers(z_needed.min(cosmology.z_max()))
+        .ensure_covers(z_needed)
         .map_err(|e| format!("cosmology: {e}"))?;
     Ok(cosmology)
 }

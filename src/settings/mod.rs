@@ -7,6 +7,7 @@ mod conventions;
 mod cosmology;
 mod example;
 mod frames;
+mod model;
 mod stages;
 
 use schemars::JsonSchema;
@@ -14,13 +15,18 @@ use serde::{Deserialize, Serialize};
 
 /// The physics' own names for what a user chooses (the vocabulary of flags and run files).
 pub use crate::physics::cosmology::LengthUnit;
+/// What there is to choose from: the named apices and cosmology presets, with sources.
+pub use crate::physics::cosmology::PRESETS;
 pub use crate::physics::estimators::{DistanceKind, DlConvention};
+pub use crate::physics::field::{DensityBoundary, FieldAxes};
+pub use crate::physics::restframe::apex_table;
 pub use crate::physics::restframe::BoostMethod;
 pub use columns::{AngleUnit, ColumnChoice, RedshiftUnit};
 pub use conventions::{cautions, ConventionChoice};
 pub use cosmology::{CosmologyChoice, ResolvedCosmology};
 pub use example::EXAMPLE_CONFIG;
 pub use frames::{FrameChoice, ResolvedFrames};
+pub use model::{InfallChoice, ModelChoice, DEFAULT_SIGMA_V_KM_S};
 pub use stages::{
     BulkFlowChoice, ExportChoice, FitSpace, GroupChoice, MalmquistChoice, MalmquistMethod,
     OutlierChoice,
