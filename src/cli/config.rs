@@ -5,6 +5,8 @@ use std::path::PathBuf;
 use anyhow::anyhow;
 use clap::Args;
 
+use flowsift::catalogue::atomic::write_bytes;
+use flowsift::plan::{check_run_file, Files};
 use flowsift::settings::{RunConfig, EXAMPLE_CONFIG};
 
 /// Write an example run file or the schema.
@@ -29,19 +31,20 @@ pub struct ConfigArgs {
 }
 
 pub fn run(a: ConfigArgs) -> anyhow::Result<()> {
+    if let Some(out) = &a.output {
+        let mut files = Files::new();
+        if let Some(p) = &a.check {
+            files.read("run file", p);
+        }
+        files.write("output", out);
+        files.check(a.force).map_err(|e| anyhow!(e))?;
+    }
     let text = if a.example {
         EXAMPLE_CONFIG.to_string()
     } else if a.schema {
         RunConfig::json_schema()
     } else if let Some(p) = &a.check {
-        let text = std::fs::read_to_string(p).map_err(|e| anyhow!("{}: {e}", p.display()))?;
-        let cfg = RunConfig::from_toml(&text, &p.display().to_string()).map_err(|e| anyhow!(e))?;
-        cfg.cosmology
-            .resolve()
-            .map_err(|e| anyhow!("{}: cosmology: {e}", p.display()))?;
-        cfg.frame
-            .resolve()
-            .map_err(|e| anyhow!("{}: frame: {e}", p.display()))?;
+        let cfg = check_run_file(p).map_err(|e| anyhow!(e))?;
         format!(
             "{} is valid\n{}",
             p.display(),
@@ -51,22 +54,7 @@ pub fn run(a: ConfigArgs) -> anyhow::Result<()> {
         unreachable!("clap requires one")
     };
     match a.output {
-        Some(path) => {
-            if path.exists() && !a.force {
-                return Err(anyhow!(
-                    "{}: file exists; pass --force to replace it",
-                    path.display()
-                ));
-            }
-            let dir = path
-                .parent()
-                .filter(|p| !p.as_os_str().is_empty())
-                .unwrap_or(std::path::Path::new("."));
-            let tmp = tempfile::NamedTempFile::new_in(dir)?;
-            std::fs::write(tmp.path(), text)?;
-            tmp.persist(&path)
-                .map_err(|e| anyhow!("{}: {}", path.display(), e.error))?;
-        }
+        Some(path) => write_bytes(&path, text.as_bytes())?,
         None => print!("{text}"),
     }
     Ok(())

@@ -19,5 +19,6 @@ pub use common::Shared;
 pub use correct::{plan_correct, CorrectOrder, CorrectPlan};
 pub use mock::{plan_field, plan_mock, FieldOrder, FieldPlan, MockOrder, MockOverrides, MockPlan};
 pub use paths::Files;
+pub use run_file::{check_run_file, merge_run_file};
 pub use stage::{plan_stage, StageOrder, StagePlan};
 pub use velocities::{plan_velocities, sibling_json, sibling_path, VelocityOrder, VelocityPlan};

@@ -15,3 +15,13 @@ pub fn merge_run_file(run_file: Option<&Path>, flags: &RunConfig) -> Result<RunC
     };
     Ok(file.overlay(flags))
 }
+
+/// Check a run file as a run would, without data: it parses, its cosmology and frames
+/// resolve, its counts and stage settings are in range.
+pub fn check_run_file(path: &Path) -> Result<RunConfig, String> {
+    let cfg = merge_run_file(Some(path), &RunConfig::default())?;
+    let at = |e: String| format!("{}: {e}", path.display());
+    super::common::Shared::resolve(None, None, &cfg, false).map_err(at)?;
+    super::velocities::check_settings(&cfg).map_err(at)?;
+    Ok(cfg)
+}

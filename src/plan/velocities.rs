@@ -116,17 +116,12 @@ pub(crate) fn format_of_output(path: &Path) -> Result<Format, String> {
     })
 }
 
-/// Check the order and resolve it into a plan.
-pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, String> {
-    let user = merge_run_file(order.run_file.as_deref(), &order.flags)?;
-    let output_format = format_of_output(&order.output)?;
-    let shared = Shared::resolve(
-        Some(&order.input),
-        user.input.hdu.as_deref(),
-        &user,
-        order.override_input_settings,
-    )?;
-    let cfg = &shared.config;
+/// The checks of a run's settings that need no data: Monte Carlo draws, stage settings,
+/// the Malmquist profile. Returns the draws, the outlier settings and the profile path.
+/// `config --check` runs these too, so a run file it calls valid is one a run accepts.
+pub fn check_settings(
+    cfg: &RunConfig,
+) -> Result<(usize, Option<OutlierSettings>, Option<PathBuf>), String> {
     let draws = cfg.errors.monte_carlo.unwrap_or(0);
     if draws == 1 {
         return Err("monte_carlo needs at least 2 draws per object to give percentiles".into());
@@ -162,6 +157,21 @@ pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, String> {
             );
         }
     }
+    Ok((draws, outliers, profile))
+}
+
+/// Check the order and resolve it into a plan.
+pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, String> {
+    let user = merge_run_file(order.run_file.as_deref(), &order.flags)?;
+    let output_format = format_of_output(&order.output)?;
+    let shared = Shared::resolve(
+        Some(&order.input),
+        user.input.hdu.as_deref(),
+        &user,
+        order.override_input_settings,
+    )?;
+    let cfg = &shared.config;
+    let (draws, outliers, profile) = check_settings(cfg)?;
     let groups_output = cfg.groups.as_ref().map(|g| match &g.output {
         Some(p) => PathBuf::from(p),
         None => sibling_path(&order.output, "groups"),
