@@ -9,8 +9,8 @@ use flowsift::catalogue::{read_table, write_table, Provenance, ReadOptions, Tabl
 use flowsift::flow::outliers::{flag_outliers, OutlierSettings};
 use flowsift::flow::FlowSample;
 use flowsift::mock::{generate, MockCatalogue, MockSpec};
-use flowsift::physics::bulkflow::{fit_bulk_flow, FlowData, SigmaStar};
 use flowsift::physics::cosmology::{Cosmology, CosmologyParams, LengthUnit};
+use flowsift::physics::dipole_likelihood::{fit_bulk_flow, FlowData, SigmaStar};
 use flowsift::physics::estimators::{DistanceKind, DlConvention, EstimatorOptions};
 use flowsift::physics::object::ObjectContext;
 use flowsift::physics::restframe::{default_apex, Boost, BoostMethod};
@@ -103,7 +103,7 @@ fn bulk_flow_errors_cover_the_truth() {
             ..spec(2000, seed, truth)
         });
         let s = sample_of(&m);
-        let (y, e, k) = flowsift::flow::outliers::fit_vectors(&s, &c, FitSpace::Eta);
+        let (y, e, k) = flowsift::flow::fit::fit_vectors(&s, &c, FitSpace::Eta);
         let fit = fit_bulk_flow(
             &FlowData {
                 directions: &s.directions,

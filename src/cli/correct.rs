@@ -6,7 +6,7 @@ use anyhow::anyhow;
 use clap::{Args, ValueEnum};
 
 use flowsift::plan::{plan_correct, CorrectOrder};
-use flowsift::run::correct::run_correct;
+use flowsift::run::hubble_correction::run_correct;
 use flowsift::settings::{
     DensityBoundary, FieldAxes, InfallChoice, InputChoice, LengthUnit, ModelChoice, RunConfig,
 };

@@ -10,7 +10,7 @@ use flowsift::catalogue::{read_table, ReadOptions, Table};
 use flowsift::mock::MockSpec;
 use flowsift::plan::{plan_velocities, VelocityOrder};
 use flowsift::run::demo::demo_hubble_check;
-use flowsift::run::{run_velocities, Stage};
+use flowsift::run::{run_velocities, Phase};
 use flowsift::settings::ConventionChoice;
 use flowsift::settings::{ErrorChoice, RunConfig};
 
@@ -75,7 +75,7 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
     };
     let outputs = ["lantern_velocities.fits", "lantern_velocities.csv"];
     let progress = Progress::new(spec.n);
-    let report = |s: Stage, k: usize| progress.tick(s, k);
+    let report = |s: Phase, k: usize| progress.tick(s, k);
     let mut last = None;
     for name in outputs {
         let out = a.out_dir.join(name);

@@ -10,7 +10,7 @@ mod galaxy;
 mod mock;
 mod options;
 mod plot;
-mod stages;
+mod sample_stages;
 mod table;
 mod velocities;
 
@@ -35,15 +35,15 @@ pub enum Command {
     /// Run files: a commented example, or their JSON Schema.
     Config(config::ConfigArgs),
     /// Combine group members: error-weighted mean distance, mean redshift, group velocities.
-    Groups(Box<stages::GroupsArgs>),
+    Groups(Box<sample_stages::GroupsArgs>),
     /// Malmquist-bias correction of the distances, then velocities.
-    Malmquist(Box<stages::MalmquistArgs>),
+    Malmquist(Box<sample_stages::MalmquistArgs>),
     /// Flag outliers in a flowsift output (adds `outlier` and `outlier_reason`).
-    Outliers(Box<stages::OutliersArgs>),
+    Outliers(Box<sample_stages::OutliersArgs>),
     /// The maximum-likelihood bulk flow of a flowsift output and its ΛCDM expectation.
-    Bulkflow(Box<stages::BulkFlowArgs>),
+    Bulkflow(Box<sample_stages::BulkFlowArgs>),
     /// The flow-sample export (supergalactic positions, velocities, errors, flags).
-    Export(Box<stages::ExportArgs>),
+    Export(Box<sample_stages::ExportArgs>),
     /// Hubble-diagram redshifts corrected with a velocity-field model (z_cos_model, errors).
     Correct(Box<correct::CorrectArgs>),
     /// A velocity-field file sampled from an analytic model.
@@ -68,11 +68,11 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Mock(a) => mock::run(*a),
         Command::Correct(a) => correct::run(*a),
         Command::Field(a) => field::run(*a),
-        Command::Groups(a) => stages::groups(*a),
-        Command::Malmquist(a) => stages::malmquist(*a),
-        Command::Outliers(a) => stages::outliers(*a),
-        Command::Bulkflow(a) => stages::bulkflow(*a),
-        Command::Export(a) => stages::export(*a),
+        Command::Groups(a) => sample_stages::groups(*a),
+        Command::Malmquist(a) => sample_stages::malmquist(*a),
+        Command::Outliers(a) => sample_stages::outliers(*a),
+        Command::Bulkflow(a) => sample_stages::bulkflow(*a),
+        Command::Export(a) => sample_stages::export(*a),
         Command::Distances(a) => distances::run(a),
         Command::Frames(a) => frames::run(a),
         Command::Demo(a) => demo::run(a),

@@ -33,7 +33,7 @@ pub struct PlotArgs {
     /// The model curve's cosmology: by default the one recorded with the input (else flat
     /// ΛCDM, H0 = 70, Ω_m = 0.3).
     #[command(flatten)]
-    pub common: super::stages::StageCommon,
+    pub common: super::sample_stages::StageCommon,
     /// FITS HDU to read, by EXTNAME or number (default: the first binary table).
     #[arg(long, value_name = "HDU")]
     pub hdu: Option<String>,

@@ -10,7 +10,7 @@ use clap::Args;
 use indicatif::{ProgressBar, ProgressStyle};
 
 use flowsift::plan::{plan_velocities, VelocityOrder};
-use flowsift::run::{run_velocities, RunSummary, Stage};
+use flowsift::run::{run_velocities, Phase, RunSummary};
 use flowsift::settings::{
     BulkFlowChoice, ErrorChoice, ExportChoice, GroupChoice, InputChoice, MalmquistChoice,
     OutlierChoice, RunConfig,
@@ -158,7 +158,7 @@ impl VelocitiesArgs {
 
 /// A progress bar on a terminal, nothing otherwise.
 pub struct Progress {
-    bars: Mutex<Vec<(Stage, ProgressBar)>>,
+    bars: Mutex<Vec<(Phase, ProgressBar)>>,
     total: u64,
     visible: bool,
 }
@@ -172,16 +172,16 @@ impl Progress {
         }
     }
 
-    pub fn tick(&self, stage: Stage, k: usize) {
+    pub fn tick(&self, phase: Phase, k: usize) {
         if !self.visible {
             return;
         }
         let mut bars = self.bars.lock().expect("progress lock");
-        if !bars.iter().any(|(s, _)| *s == stage) {
+        if !bars.iter().any(|(s, _)| *s == phase) {
             let bar = ProgressBar::new(self.total);
-            let label = match stage {
-                Stage::Derive => "velocities",
-                Stage::MonteCarlo => "monte carlo",
+            let label = match phase {
+                Phase::Derive => "velocities",
+                Phase::MonteCarlo => "monte carlo",
             };
             bar.set_style(
                 ProgressStyle::with_template(
@@ -191,9 +191,9 @@ impl Progress {
                 .progress_chars("=> "),
             );
             bar.set_prefix(label);
-            bars.push((stage, bar));
+            bars.push((phase, bar));
         }
-        if let Some((_, b)) = bars.iter().find(|(s, _)| *s == stage) {
+        if let Some((_, b)) = bars.iter().find(|(s, _)| *s == phase) {
             b.inc(k as u64);
         }
     }
@@ -229,7 +229,7 @@ pub fn run_with(
     .map_err(|e| anyhow!(e))?;
     // The row count is known only after reading; the bar sizes itself on first use.
     let progress = Progress::new(0);
-    let report = |s: Stage, k: usize| progress.tick(s, k);
+    let report = |s: Phase, k: usize| progress.tick(s, k);
     let summary = run_velocities(&plan, &report).map_err(|e| anyhow!(e))?;
     progress.finish();
     print_summary(&summary, a.json)

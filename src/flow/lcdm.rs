@@ -1,9 +1,9 @@
 //! The ΛCDM expectation of a measured bulk flow.
 
-use crate::physics::bulkflow::BulkFlowFit;
 use crate::physics::cosmology::Cosmology;
+use crate::physics::dipole_likelihood::BulkFlowFit;
 
-use super::bulk::LcdmComparison;
+use super::bulk_flow_report::LcdmComparison;
 use crate::settings::BulkFlowChoice;
 
 /// The ΛCDM expectation for a fitted flow: the covariance of the ML estimator under linear

@@ -2,11 +2,12 @@
 //! with its ΛCDM expectation, and the flow-sample export. They read the columns a
 //! `velocities` run writes, so they run inside that run or alone on its output.
 
-pub mod bulk;
-pub mod correct;
+pub mod bulk_flow_report;
 pub mod export;
+pub mod fit;
 pub mod groups;
 pub mod lcdm;
+pub mod line_of_sight;
 pub mod outliers;
 pub mod sample;
 

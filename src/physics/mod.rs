@@ -5,10 +5,10 @@
 //! mix-up would be a bug). Nothing in this module reads files, prints or exits; the catalogue
 //! edges and the command line sit outside it.
 
-pub mod bulkflow;
 pub mod chebyshev;
 pub mod constants;
 pub mod cosmology;
+pub mod dipole_likelihood;
 pub mod error;
 pub mod estimators;
 pub mod field;

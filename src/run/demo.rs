@@ -57,7 +57,7 @@ pub fn demo_hubble_check(data: &Path, field: &Path, out: &Path) -> Result<Hubble
         ),
     })?;
     let params: CosmologyParams = plan.shared.cosmology.params;
-    let s = super::correct::run_correct(&plan)?;
+    let s = super::hubble_correction::run_correct(&plan)?;
     let t = read_table(out, &ReadOptions::default()).map_err(|e| e.to_string())?;
     let cosmology = Cosmology::new(params).map_err(|e| e.to_string())?;
     let mu = float_column(&t, "mu")?;

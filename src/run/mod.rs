@@ -4,13 +4,13 @@
 //! everything with the run's record. The command line and the demo both call this with a
 //! checked [`VelocityPlan`]; it never prints (progress goes through a callback).
 
-pub mod correct;
 pub mod demo;
 pub mod distances;
 pub mod galaxy;
 pub mod generate;
+pub mod hubble_correction;
 pub mod model;
-pub mod stages;
+pub mod sample_stages;
 pub mod standalone;
 
 use std::path::PathBuf;
@@ -32,7 +32,7 @@ use crate::plan::{ColumnPlan, VelocityPlan};
 
 /// Which part of the run a progress report is about.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
-pub enum Stage {
+pub enum Phase {
     Derive,
     MonteCarlo,
 }
@@ -61,7 +61,7 @@ pub struct RunSummary {
     /// Outliers: counts per reason and in all.
     pub outliers: Option<(Vec<(String, usize)>, usize)>,
     /// The bulk flow and where its JSON went.
-    pub bulk_flow: Option<(crate::flow::bulk::BulkFlowReport, PathBuf)>,
+    pub bulk_flow: Option<(crate::flow::bulk_flow_report::BulkFlowReport, PathBuf)>,
     /// The flow-sample export.
     pub export: Option<(crate::flow::export::ExportSummary, PathBuf)>,
 }
@@ -113,7 +113,7 @@ fn read_catalogue(plan: &VelocityPlan) -> Result<(Table, Option<SourceText>, Vec
             None,
         )
     };
-    let (table, replaced) = stages::strip_earlier_run(table);
+    let (table, replaced) = sample_stages::strip_earlier_run(table);
     Ok((table, text, replaced))
 }
 
@@ -157,9 +157,9 @@ fn monte_carlo_columns(
     input: &InputColumns<'_>,
     status: &[u8],
     plan: &VelocityPlan,
-    progress: &(dyn Fn(Stage, usize) + Sync),
+    progress: &(dyn Fn(Phase, usize) + Sync),
 ) -> Vec<(String, Vec<f64>, ColumnMeta)> {
-    let mc_progress = |k: usize| progress(Stage::MonteCarlo, k);
+    let mc_progress = |k: usize| progress(Phase::MonteCarlo, k);
     let mc = montecarlo::run(ctx, input, status, plan.draws, plan.seed, &mc_progress);
     let kms = |ucd: &str| ColumnMeta {
         unit: Some("km/s".into()),
@@ -220,7 +220,7 @@ fn velocity_record(
 /// Run `velocities` as `plan` says.
 pub fn run_velocities(
     plan: &VelocityPlan,
-    progress: &(dyn Fn(Stage, usize) + Sync),
+    progress: &(dyn Fn(Phase, usize) + Sync),
 ) -> Result<RunSummary, String> {
     let cfg = plan.config();
     let shared = &plan.shared;
@@ -253,7 +253,8 @@ pub fn run_velocities(
     let mut extra: Vec<(String, Vec<f64>, ColumnMeta)> = vec![];
     if let Some(m) = &cfg.malmquist {
         let factor = columns.length_unit.from_mpc_factor(cosmology.params());
-        let (f, corrected, note) = stages::apply_malmquist(&mut input, m, &cosmology, factor)?;
+        let (f, corrected, note) =
+            sample_stages::apply_malmquist(&mut input, m, &cosmology, factor)?;
         notes.push(note);
         extra.push((
             "malmquist_factor".into(),
@@ -273,7 +274,7 @@ pub fn run_velocities(
         ));
     }
 
-    let derive_progress = |k: usize| progress(Stage::Derive, k);
+    let derive_progress = |k: usize| progress(Phase::Derive, k);
     let mut derived = pipeline::derive(&ctx, &input, &derive_progress);
     notes.extend(error_note(&columns, shared.sigma_star, &mut derived));
     let counts_map = derived.counts();
@@ -296,7 +297,7 @@ pub fn run_velocities(
             if let Some(d) = uncorrected_distance {
                 source.distance = d;
             }
-            let (gt, g, note) = stages::group_table(
+            let (gt, g, note) = sample_stages::group_table(
                 &ctx,
                 &table,
                 &columns,
@@ -318,7 +319,7 @@ pub fn run_velocities(
         pipeline::assemble(&table, derived, extra, columns.length_unit.label())?;
     let mut group_out = None;
     if let Some((gt, g)) = grouped {
-        stages::add_group_index(&mut out_table, &g)?;
+        sample_stages::add_group_index(&mut out_table, &g)?;
         notes.push(format!(
             "Groups: {} groups from {} rows; outliers, bulk flow and export use the group table.",
             g.key.len(),
@@ -337,7 +338,7 @@ pub fn run_velocities(
             None => &mut out_table,
         };
         if let Some(settings) = &plan.outliers {
-            let r = stages::add_outliers(flow_table, &cosmology, settings)?;
+            let r = sample_stages::add_outliers(flow_table, &cosmology, settings)?;
             let (per, total) = r.counts();
             outlier_summary = Some((
                 per.into_iter().map(|(n, c)| (n.to_string(), c)).collect(),
@@ -345,7 +346,9 @@ pub fn run_velocities(
             ));
         }
         if let Some(bc) = &cfg.bulk_flow {
-            bulk = Some(stages::bulk_flow_of(flow_table, &cosmology, bc)?);
+            bulk = Some(sample_stages::bulk_flow_of_table(
+                flow_table, &cosmology, bc,
+            )?);
         }
         if let Some(ec) = &cfg.export {
             export = Some(crate::flow::export::export_table(

@@ -3,14 +3,14 @@
 //! record that nests the input's.
 
 use crate::catalogue::{read_table, write_table, ReadOptions, RunRecord, Table, WriteOptions};
-use crate::flow::bulk::BulkFlowReport;
+use crate::flow::bulk_flow_report::BulkFlowReport;
 use crate::flow::export::{export_table, ExportSummary};
 use crate::flow::outliers::{OutlierResult, OutlierSettings};
 use crate::physics::cosmology::{Cosmology, LengthUnit};
 use crate::plan::StagePlan;
 
 use super::cosmology_reaching;
-use super::stages::{add_outliers, bulk_flow_of};
+use super::sample_stages::{add_outliers, bulk_flow_of_table};
 
 fn read_input(plan: &StagePlan) -> Result<Table, String> {
     read_table(
@@ -87,7 +87,7 @@ pub fn run_bulkflow(plan: &StagePlan) -> Result<(BulkFlowReport, Vec<String>), S
     let choice = plan.config().bulk_flow.clone().unwrap_or_default();
     let table = read_input(plan)?;
     let cosmology = cosmology_for(plan, &table)?;
-    let report = bulk_flow_of(&table, &cosmology, &choice)
+    let report = bulk_flow_of_table(&table, &cosmology, &choice)
         .map_err(|e| format!("{}: {e}", plan.input.display()))?;
     let mut record = stage_record(plan, table.frame.height());
     record.settings.bulk_flow = Some(choice.filled());

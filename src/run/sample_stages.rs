@@ -6,13 +6,13 @@ use std::path::Path;
 use polars::prelude::*;
 
 use crate::catalogue::{read_table, ColumnMeta, ReadOptions, Table};
-use crate::flow::bulk::{bulk_flow, BulkFlowReport};
+use crate::flow::bulk_flow_report::{bulk_flow, BulkFlowReport};
 use crate::flow::groups::{combine, Groups, Members};
 use crate::flow::lcdm::lcdm_comparison;
 use crate::flow::outliers::{flag_outliers, reason_text, OutlierResult, OutlierSettings};
 use crate::flow::FlowSample;
-use crate::physics::bulkflow::SigmaStar;
 use crate::physics::cosmology::Cosmology;
+use crate::physics::dipole_likelihood::SigmaStar;
 use crate::physics::estimators::{Distance, DistanceKind};
 use crate::physics::malmquist::{homogeneous_malmquist_factor, malmquist_factor, RadialProfile};
 use crate::physics::object::{evaluate_with, ObjectContext, ObjectInput};
@@ -370,7 +370,7 @@ pub fn add_outliers(
 }
 
 /// The bulk flow of a flowsift table.
-pub fn bulk_flow_of(
+pub fn bulk_flow_of_table(
     table: &Table,
     cosmology: &Cosmology,
     choice: &BulkFlowChoice,
@@ -387,10 +387,12 @@ pub fn bulk_flow_of(
             ));
         }
     }
-    let hook = |fit: &crate::physics::bulkflow::BulkFlowFit, pos: &[[f64; 3]], kappa: &[f64]| {
-        lcdm_comparison(fit, pos, kappa, cosmology, choice)
-    };
-    let lcdm: Option<&crate::flow::bulk::LcdmHook<'_>> = if choice.lcdm.unwrap_or(true) {
+    let hook =
+        |fit: &crate::physics::dipole_likelihood::BulkFlowFit, pos: &[[f64; 3]], kappa: &[f64]| {
+            lcdm_comparison(fit, pos, kappa, cosmology, choice)
+        };
+    let lcdm: Option<&crate::flow::bulk_flow_report::LcdmHook<'_>> = if choice.lcdm.unwrap_or(true)
+    {
         Some(&hook)
     } else {
         None

@@ -9,7 +9,7 @@ use rayon::prelude::*;
 use serde::Serialize;
 
 use crate::catalogue::{read_table, ColumnMeta, ReadOptions, Table, WriteOptions};
-use crate::flow::correct::{correct_object, LineOfSight, SearchSettings};
+use crate::flow::line_of_sight::{correct_object, LineOfSight, SearchSettings};
 use crate::physics::constants::C_KM_S;
 use crate::physics::cosmology::LengthUnit;
 use crate::physics::field::FieldAxes;
@@ -114,7 +114,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, String> {
         convention,
     };
     let n = z.len();
-    let results: Vec<Option<crate::flow::correct::Correction>> = (0..n)
+    let results: Vec<Option<crate::flow::line_of_sight::Correction>> = (0..n)
         .into_par_iter()
         .map(|i| {
             if ra_code[i] != 0 || dec_code[i] != 0 || z_code[i] != 0 {
@@ -155,7 +155,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, String> {
         .iter()
         .map(|r| r.map(|c| c.flag.name()).unwrap_or("bad_input"))
         .collect();
-    let col = |f: fn(&crate::flow::correct::Correction) -> f64| -> Vec<Option<f64>> {
+    let col = |f: fn(&crate::flow::line_of_sight::Correction) -> f64| -> Vec<Option<f64>> {
         results
             .iter()
             .map(|r| r.as_ref().map(f).filter(|v| v.is_finite()))

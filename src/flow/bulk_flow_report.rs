@@ -4,11 +4,11 @@
 
 use serde::Serialize;
 
-use crate::physics::bulkflow::{amplitude_direction, BulkFlowFit, SigmaStar};
 use crate::physics::cosmology::Cosmology;
+use crate::physics::dipole_likelihood::{amplitude_direction, BulkFlowFit, SigmaStar};
 use crate::physics::sky::{Rotation, SkyFrame, SkyRotations};
 
-use super::outliers::{fit_subset, fit_vectors, fittable};
+use super::fit::{fit_subset, fit_vectors, fittable};
 use super::FlowSample;
 use crate::settings::FitSpace;
 
