@@ -286,6 +286,21 @@ fn settings_travel_through_a_chain_of_commands() {
         rec.chain()
     );
 
+    // The report shows the chain, read from the record.
+    run_ok(&[
+        "plot",
+        &p("o.parquet"),
+        "--out-dir",
+        &p("figs"),
+        "--format",
+        "svg",
+    ]);
+    let html = std::fs::read_to_string(dir.path().join("figs/report.html")).unwrap();
+    assert!(
+        html.contains("velocities → outliers"),
+        "no chain in the report"
+    );
+
     // A contradicting cosmology is refused, then accepted on purpose and recorded.
     fails(
         &["outliers", &p("v.fits"), "-o", &p("x.fits"), "--h0", "70"],

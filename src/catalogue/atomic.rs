@@ -58,6 +58,13 @@ fn name_destination(message: String, tmp: &Path, path: &Path) -> String {
     message.replace(&tmp.display().to_string(), &path.display().to_string())
 }
 
+fn not_moved(path: &Path, e: std::io::Error) -> CatalogueError {
+    CatalogueError::write(
+        path,
+        format!("cannot move the finished file into place: {e}"),
+    )
+}
+
 /// Write `path` through an open temporary file.
 pub fn write_via_file(
     path: &Path,
@@ -67,12 +74,7 @@ pub fn write_via_file(
     fill(tmp.as_file())
         .map_err(|e| CatalogueError::write(path, name_destination(e, tmp.path(), path)))?;
     set_readable(tmp.path());
-    tmp.persist(path).map_err(|e| {
-        CatalogueError::write(
-            path,
-            format!("cannot move the finished file into place: {}", e.error),
-        )
-    })?;
+    tmp.persist(path).map_err(|e| not_moved(path, e.error))?;
     Ok(())
 }
 
@@ -89,12 +91,7 @@ pub fn write_via_path(
     fill(&tmp_path)
         .map_err(|e| CatalogueError::write(path, name_destination(e, &tmp_path, path)))?;
     set_readable(&tmp_path);
-    tmp.persist(path).map_err(|e| {
-        CatalogueError::write(
-            path,
-            format!("cannot move the finished file into place: {}", e.error),
-        )
-    })?;
+    tmp.persist(path).map_err(|e| not_moved(path, e.error))?;
     Ok(())
 }
 

@@ -155,6 +155,33 @@ fn input_section(
         esc(source),
         provenance.len()
     );
+    let record = crate::catalogue::RunRecord::from_provenance(&crate::catalogue::Provenance {
+        entries: provenance.to_vec(),
+    });
+    match record {
+        Ok(Some(r)) => {
+            let _ = write!(
+                h,
+                "<tr><th>steps that made it</th><td><code>{}</code></td></tr>",
+                esc(&r.chain().join(" → "))
+            );
+            if !r.overridden.is_empty() {
+                let _ = write!(
+                    h,
+                    "<tr><th>overridden against its input</th><td>{}</td></tr>",
+                    esc(&r.overridden.join("; "))
+                );
+            }
+        }
+        Ok(None) => {}
+        Err(e) => {
+            let _ = write!(
+                h,
+                "<tr><th>record</th><td class=\"warn\">{}</td></tr>",
+                esc(&e)
+            );
+        }
+    }
     for (key, label) in [
         ("input", "catalogue it was made from"),
         ("stage", "stage"),

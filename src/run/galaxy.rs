@@ -1,10 +1,10 @@
 //! `galaxy`: one object through the same physics as a catalogue row, with the redshift in
 //! the other rest frames for reference.
 
-use crate::physics::estimators::{Distance, EstimatorOptions};
-use crate::physics::object::{evaluate, ObjectContext, ObjectInput, ObjectResult};
+use crate::physics::estimators::Distance;
+use crate::physics::object::{evaluate, ObjectInput, ObjectResult};
 use crate::physics::redshift::{Heliocentric, Redshift};
-use crate::physics::sky::{Direction, Icrs, SkyRotations};
+use crate::physics::sky::{Direction, Icrs};
 use crate::plan::galaxy::GalaxyPlan;
 
 use super::cosmology_reaching;
@@ -26,17 +26,7 @@ pub fn run_galaxy(plan: &GalaxyPlan) -> Result<GalaxyReport, String> {
     // cosmological redshift far from the observed one.
     let cosmology = cosmology_reaching(shared.cosmology.params, 2.0 + plan.z_helio)?;
     let length_unit = shared.config.conventions.length_unit.unwrap_or_default();
-    let ctx = ObjectContext {
-        cosmology: &cosmology,
-        rotations: SkyRotations::default(),
-        cmb: shared.frames.cmb,
-        method: shared.frames.method,
-        options: EstimatorOptions {
-            convention: shared.convention,
-            sigma_star_km_s: shared.sigma_star,
-        },
-        length_unit,
-    };
+    let ctx = super::object_context(shared, &cosmology, length_unit);
     let input = ObjectInput {
         ra_deg: plan.ra_deg,
         dec_deg: plan.dec_deg,

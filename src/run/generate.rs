@@ -4,7 +4,7 @@
 use crate::catalogue::field_io::{write_field_fits, write_field_table};
 use crate::catalogue::{write_table, Format, WriteOptions};
 use crate::physics::cosmology::LengthUnit;
-use crate::physics::field::{hubble_per_length, AnalyticField, FieldAxes, InfallCentre};
+use crate::physics::field::{hubble_per_length, AnalyticField, FieldAxes};
 use crate::physics::power::growth_rate;
 use crate::physics::sky::SkyRotations;
 use crate::plan::{FieldPlan, MockPlan};
@@ -80,12 +80,7 @@ pub fn run_field(plan: &FieldPlan) -> Result<f64, String> {
         centres: plan
             .infall
             .iter()
-            .map(|c| InfallCentre {
-                name: c.name.clone(),
-                position: c.position,
-                delta0: c.delta0,
-                r_scale: c.r_scale,
-            })
+            .map(crate::settings::InfallChoice::centre)
             .collect(),
         growth_rate: growth_rate(params.omega_m, params.omega_de, 0.0),
         h0_km_s_per_length: hubble_per_length(&params, plan.unit),

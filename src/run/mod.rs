@@ -95,6 +95,25 @@ pub fn cosmology_reaching(
     Ok(cosmology)
 }
 
+/// What the per-object physics needs from a run's shared settings.
+pub(crate) fn object_context<'a>(
+    shared: &crate::plan::Shared,
+    cosmology: &'a Cosmology,
+    length_unit: crate::physics::cosmology::LengthUnit,
+) -> ObjectContext<'a> {
+    ObjectContext {
+        cosmology,
+        rotations: SkyRotations::default(),
+        cmb: shared.frames.cmb,
+        method: shared.frames.method,
+        options: EstimatorOptions {
+            convention: shared.convention,
+            sigma_star_km_s: shared.sigma_star,
+        },
+        length_unit,
+    }
+}
+
 /// Step 1: the catalogue, with its text when a delimited output can copy its columns, and
 /// without the derived columns of an earlier run (they are recomputed).
 fn read_catalogue(plan: &VelocityPlan) -> Result<(Table, Option<SourceText>, Vec<String>), String> {
@@ -234,17 +253,7 @@ pub fn run_velocities(
     let uncorrected_distance =
         (cfg.groups.is_some() && cfg.malmquist.is_some()).then(|| input.distance.clone());
     let cosmology = cosmology_reaching(shared.cosmology.params, top_redshift(&input))?;
-    let ctx = ObjectContext {
-        cosmology: &cosmology,
-        rotations: SkyRotations::default(),
-        cmb: shared.frames.cmb,
-        method: shared.frames.method,
-        options: EstimatorOptions {
-            convention: shared.convention,
-            sigma_star_km_s: shared.sigma_star,
-        },
-        length_unit: columns.length_unit,
-    };
+    let ctx = object_context(shared, &cosmology, columns.length_unit);
     let mut notes = shared.cautions();
     if !replaced.is_empty() {
         notes.push("The input is a flowsift output: its derived columns were recomputed.".into());

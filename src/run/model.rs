@@ -9,7 +9,7 @@ use crate::physics::field::{
     DensityBoundary, FieldAxes, FlowModel, InfallCentre, VelocityGrid,
 };
 use crate::physics::power::growth_rate;
-use crate::settings::{ModelChoice, DEFAULT_SIGMA_V_KM_S};
+use crate::settings::{InfallChoice, ModelChoice, DEFAULT_SIGMA_V_KM_S};
 
 /// The model and what it is, or None when the choice names no model part.
 pub fn build_model(
@@ -56,16 +56,7 @@ pub fn build_model(
         }
         (None, None) => None,
     };
-    let centres: Vec<InfallCentre> = choice
-        .infall
-        .iter()
-        .map(|c| InfallCentre {
-            name: c.name.clone(),
-            position: c.position,
-            delta0: c.delta0,
-            r_scale: c.r_scale,
-        })
-        .collect();
+    let centres: Vec<InfallCentre> = choice.infall.iter().map(InfallChoice::centre).collect();
     let analytic = if choice.bulk.is_some() || !centres.is_empty() {
         let axes = grid
             .as_ref()

@@ -20,6 +20,16 @@ pub struct InfallChoice {
 }
 
 impl InfallChoice {
+    /// The centre as the field model takes it.
+    pub fn centre(&self) -> crate::physics::field::InfallCentre {
+        crate::physics::field::InfallCentre {
+            name: self.name.clone(),
+            position: self.position,
+            delta0: self.delta0,
+            r_scale: self.r_scale,
+        }
+    }
+
     /// Parse `NAME,X,Y,Z,DELTA0,R_SCALE`.
     pub fn parse(s: &str) -> Result<InfallChoice, String> {
         let p: Vec<&str> = s.split(',').map(str::trim).collect();
