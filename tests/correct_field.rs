@@ -215,6 +215,40 @@ fn density_grid_gives_linear_theory_velocities() {
         (v - expected).abs() < 0.03 * expected.abs().max(100.0),
         "v_model {v} vs linear theory {expected} at r = {r}"
     );
+    // Read as a galaxy density contrast with β = 0.5, the same grid gives v ∝ β with no
+    // growth rate inside (v_x = −(H0 β A/k) sin(k x) for δ_g = A cos(k x); linear theory
+    // with a linear bias, Strauss & Willick 1995, from memory): the same velocities as f = 0.5,
+    // not f·β.
+    let out_beta = dir.path().join("out_beta.csv");
+    let base = [
+        "correct",
+        input.to_str().unwrap(),
+        "--density",
+        density.to_str().unwrap(),
+        "--density-boundary",
+        "periodic",
+    ];
+    let mut args = base.to_vec();
+    args.extend(["-o", out_beta.to_str().unwrap(), "--beta", "0.5"]);
+    run_ok(&args);
+    let tb = read_table(&out_beta, &ReadOptions::default()).unwrap();
+    assert!((f64s(&tb, "v_model")[0] - v).abs() < 1e-9 * v.abs().max(1.0));
+    let x = dir.path().join("x.csv");
+    let mut both = base.to_vec();
+    both.extend([
+        "-o",
+        x.to_str().unwrap(),
+        "--beta",
+        "0.5",
+        "--growth-rate",
+        "0.5",
+    ]);
+    Command::cargo_bin("flowsift")
+        .unwrap()
+        .args(&both)
+        .assert()
+        .failure()
+        .stderr(predicates::str::contains("two readings"));
 }
 
 /// `correct --density` with a FITS `DELTA` image and the default isolated boundary: a

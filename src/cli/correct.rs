@@ -65,7 +65,8 @@ pub struct ModelFlags {
         requires = "density"
     )]
     pub density_boundary: Option<BoundaryArg>,
-    /// Growth rate f for --density (default Ω_m^0.55 of the cosmology).
+    /// --density holds a matter density contrast: velocities with this growth rate f
+    /// (default, when neither this nor --beta is given: Ω_m^0.55 of the cosmology).
     #[arg(long = "growth-rate", value_name = "F", requires = "density")]
     pub growth_rate: Option<f64>,
     /// Axes of the model's Cartesian coordinates (when the file does not say): supergalactic or galactic.
@@ -86,7 +87,8 @@ pub struct ModelFlags {
     /// length unit); repeat for several centres.
     #[arg(long, value_name = "NAME,X,Y,Z,DELTA0,R", allow_hyphen_values = true)]
     pub infall: Vec<String>,
-    /// Scale of the model velocities (β, or the fσ8 ratio), default 1.
+    /// Scale of the model velocities (default 1). With --density, the grid is a galaxy
+    /// density contrast and β = f/b is its only scale (no growth rate inside).
     #[arg(long, value_name = "B", allow_negative_numbers = true)]
     pub beta: Option<f64>,
     /// External dipole V_ext added to the model, km/s, model axes.

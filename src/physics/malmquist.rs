@@ -92,23 +92,44 @@ impl RadialProfile {
     }
 }
 
+/// Homogeneous Malmquist correction of a logarithmic distance (ln D, η, μ as a log):
+/// E[ln r | d] − ln d = 3 Δ², Δ = σ_lnd. The posterior of x = ln r is ∝ e^{3x} times the
+/// Gaussian of the measurement, a Gaussian shifted by 3Δ² — the derivation of Lynden-Bell et
+/// al. (1988), ApJ 326, 19, taken in ln r (their E[r|d] = d exp(3.5Δ²) is the mean of e^x over
+/// the same posterior, exp(3Δ² + Δ²/2)). For η = log10(D_C(z)/r) the shift is −3Δ²/ln 10.
+pub fn homogeneous_malmquist_log_shift(sigma_ln_d: f64) -> f64 {
+    3.0 * sigma_ln_d * sigma_ln_d
+}
+
 /// The general (inhomogeneous) Malmquist correction: the factor E[r|d]/d for a measured
 /// distance d with log-normal scatter Δ and parent density `profile`.
 /// Source: Lynden-Bell et al. (1988), ApJ 326, 19; Strauss & Willick (1995), Phys. Rep. 261,
 /// 271. Integrated over x = ln r on [ln d − 12Δ, ln d + 12Δ] by composite Simpson with 1200
 /// intervals.
 pub fn malmquist_factor(d: f64, sigma_ln_d: f64, profile: &RadialProfile) -> Option<f64> {
+    posterior_moments(d, sigma_ln_d, profile).map(|m| m.0)
+}
+
+/// The general correction of a logarithmic distance: E[ln r | d] − ln d =
+/// ∫ ln(r/d) r² n(r) P(d|r) dr / ∫ r² n(r) P(d|r) dr, by the same quadrature as
+/// [`malmquist_factor`] (Lynden-Bell et al. 1988; Strauss & Willick 1995).
+pub fn malmquist_log_shift(d: f64, sigma_ln_d: f64, profile: &RadialProfile) -> Option<f64> {
+    posterior_moments(d, sigma_ln_d, profile).map(|m| m.1)
+}
+
+/// (E[r/d], E[ln(r/d)]) over the posterior of r given the measured d.
+fn posterior_moments(d: f64, sigma_ln_d: f64, profile: &RadialProfile) -> Option<(f64, f64)> {
     if !(d > 0.0 && sigma_ln_d >= 0.0) {
         return None;
     }
     if sigma_ln_d == 0.0 {
-        return Some(1.0);
+        return Some((1.0, 0.0));
     }
     let ln_d = d.ln();
     let (a, b) = (ln_d - 12.0 * sigma_ln_d, ln_d + 12.0 * sigma_ln_d);
     let m = 1200;
     let h = (b - a) / m as f64;
-    let (mut num, mut den) = (0.0, 0.0);
+    let (mut num, mut num_log, mut den) = (0.0, 0.0, 0.0);
     for i in 0..=m {
         let x = a + i as f64 * h;
         let w = if i == 0 || i == m {
@@ -124,9 +145,10 @@ pub fn malmquist_factor(d: f64, sigma_ln_d: f64, profile: &RadialProfile) -> Opt
         let rr = r / d;
         let base = w * profile.density(r) * g * rr * rr * rr;
         num += base * rr;
+        num_log += base * (x - ln_d);
         den += base;
     }
-    (den > 0.0).then(|| num / den)
+    (den > 0.0).then(|| (num / den, num_log / den))
 }
 
 #[cfg(test)]
@@ -141,6 +163,19 @@ mod tests {
             let f = malmquist_factor(80.0, delta, &RadialProfile::uniform()).unwrap();
             let h = homogeneous_malmquist_factor(delta);
             assert!((f / h - 1.0).abs() < 1e-9, "Δ = {delta}: {f} vs {h}");
+        }
+    }
+
+    /// The log-space mean with n = constant is ln d + 3Δ² (the closed form above), and the
+    /// two moments agree with each other: E[r]/d = exp(3Δ² + Δ²/2) for a Gaussian in ln r.
+    #[test]
+    fn log_shift_reduces_to_three_delta_squared() {
+        for delta in [0.05, 0.2, 0.35] {
+            let s = malmquist_log_shift(80.0, delta, &RadialProfile::uniform()).unwrap();
+            assert!((s / homogeneous_malmquist_log_shift(delta) - 1.0).abs() < 1e-9);
+            assert!(
+                (homogeneous_malmquist_factor(delta).ln() - s - 0.5 * delta * delta).abs() < 1e-9
+            );
         }
     }
 

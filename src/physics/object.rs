@@ -72,6 +72,23 @@ pub fn evaluate(
     evaluate_with(ctx, input, None)
 }
 
+/// The CMB-frame redshift of one object, by the run's boost (as [`evaluate`] finds it).
+pub fn cmb_redshift_of(
+    ctx: &ObjectContext<'_>,
+    ra_deg: f64,
+    dec_deg: f64,
+    z_helio: f64,
+) -> Result<f64, PhysicsError> {
+    let icrs = Direction::<Icrs>::from_lon_lat_deg(ra_deg, dec_deg)?;
+    let gal = ctx.rotations.icrs_to_galactic.apply(&icrs);
+    let z_helio = Redshift::<Heliocentric>::new(z_helio)?;
+    Ok(match ctx.method {
+        BoostMethod::Exact => ctx.cmb.from_heliocentric(z_helio, &gal),
+        BoostMethod::LegacyAdditive => legacy_additive(&ctx.cmb, z_helio, &gal)?,
+    }
+    .value())
+}
+
 /// As [`evaluate`], but with the CMB-frame redshift given (a group's mean redshift) instead
 /// of derived from z_helio; z_helio still enters the `observed` and `full` conventions.
 pub fn evaluate_with(

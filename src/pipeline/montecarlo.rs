@@ -7,7 +7,8 @@
 //! Reproducibility: object i draws from its own generator, [`object_rng`]`(seed, i)`, so
 //! the same seed gives identical output whatever the number of threads. Each draw takes a
 //! normal deviate for the redshift (only when σ_z > 0) and one for the distance, in that
-//! order.
+//! order; with an intrinsic scatter σ_* > 0, one more per draw after all of them, added to
+//! the draw's velocity.
 
 use rand::SeedableRng;
 use rand_distr::{Distribution, StandardNormal};
@@ -406,6 +407,17 @@ fn one_object(
         let b = (1.0 + zc) * (1.0 + zc);
         C_KM_S * (a - b) / (a + b)
     }));
+    // 6. The intrinsic scatter σ_*: a dispersion of the objects' true velocities about the
+    //    flow, independent of the distance and redshift errors, so it is drawn as a velocity
+    //    and added to each draw — as the first-order errors add it in quadrature. Its
+    //    deviates come after all others in the stream, so runs without σ_* draw as before.
+    let sigma_star = ctx.options.sigma_star_km_s;
+    if sigma_star > 0.0 {
+        for vk in d.v_all.iter_mut() {
+            let g: f64 = StandardNormal.sample(rng);
+            *vk += sigma_star * g;
+        }
+    }
     let mut failed = 0usize;
     for (vk, zc) in d.v_all.iter().zip(&d.z_cos) {
         // A failed draw has z_cos NaN (or, from an interpolant, not positive).

@@ -261,9 +261,7 @@ pub fn run_velocities(
 
     let mut extra: Vec<(String, Vec<f64>, ColumnMeta)> = vec![];
     if let Some(m) = &cfg.malmquist {
-        let factor = columns.length_unit.from_mpc_factor(cosmology.params());
-        let (f, corrected, note) =
-            sample_stages::apply_malmquist(&mut input, m, &cosmology, factor)?;
+        let (f, corrected, note) = sample_stages::apply_malmquist(&mut input, m, &ctx)?;
         notes.push(note);
         extra.push((
             "malmquist_factor".into(),

@@ -30,9 +30,23 @@ pub fn build_model(
         (None, Some(p)) => {
             let d = read_density(std::path::Path::new(p), axes_hint, unit_hint)
                 .map_err(|e| e.to_string())?;
-            let f = choice
-                .growth_rate
-                .unwrap_or_else(|| growth_rate(params.omega_m, params.omega_de, 0.0));
+            // A galaxy density contrast δ_g = b δ gives v ∝ β = f/b, with no growth rate inside;
+            // a matter density gives v ∝ f (linear theory; Strauss & Willick 1995, Phys. Rep.
+            // 261, 271, §3, from memory). The two readings are distinct inputs.
+            let (f, reading) = match (choice.beta, choice.growth_rate) {
+                (Some(_), Some(_)) => {
+                    return Err("--beta (a galaxy density contrast, β = f/b) and --growth-rate (a matter density contrast) are two readings of a density grid: give one".into())
+                }
+                (Some(b), None) => (b, format!("read as a galaxy density contrast, β = {b}")),
+                (None, Some(f)) => (f, format!("read as a matter density contrast, f = {f}")),
+                (None, None) => {
+                    let f = growth_rate(params.omega_m, params.omega_de, 0.0);
+                    (
+                        f,
+                        format!("read as a matter density contrast, f = Ω_m^0.55 = {f:.4} (Linder 2005)"),
+                    )
+                }
+            };
             let boundary = choice.density_boundary.unwrap_or(DensityBoundary::Isolated);
             let solve = match boundary {
                 DensityBoundary::Isolated => velocity_from_density_isolated,
@@ -50,7 +64,7 @@ pub fn build_model(
                 DensityBoundary::Periodic => "the grid taken as a periodic box",
             };
             description.push(format!(
-                "linear-theory velocities from the density grid {p} (f = {f:.4}, {outside})"
+                "linear-theory velocities from the density grid {p} ({reading}; {outside})"
             ));
             Some(VelocityGrid { v, ..d })
         }
@@ -98,7 +112,12 @@ pub fn build_model(
     let model = FlowModel {
         grid,
         analytic,
-        beta: choice.beta.unwrap_or(1.0),
+        // With a density grid β is already inside the grid's velocities.
+        beta: if choice.density.is_some() {
+            1.0
+        } else {
+            choice.beta.unwrap_or(1.0)
+        },
         external: choice.external.unwrap_or([0.0; 3]),
         sigma_v: choice.sigma_v.unwrap_or(DEFAULT_SIGMA_V_KM_S),
     };

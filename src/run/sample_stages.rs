@@ -14,8 +14,11 @@ use crate::flow::FlowSample;
 use crate::physics::cosmology::Cosmology;
 use crate::physics::dipole_likelihood::SigmaStar;
 use crate::physics::estimators::{Distance, DistanceKind};
-use crate::physics::malmquist::{homogeneous_malmquist_factor, malmquist_factor, RadialProfile};
-use crate::physics::object::{evaluate_with, ObjectContext, ObjectInput};
+use crate::physics::malmquist::{
+    homogeneous_malmquist_factor, homogeneous_malmquist_log_shift, malmquist_factor,
+    malmquist_log_shift, RadialProfile,
+};
+use crate::physics::object::{cmb_redshift_of, evaluate_with, ObjectContext, ObjectInput};
 use crate::pipeline::{output_values, Derived, InputColumns, RowStatus, OUTPUT_COLUMNS};
 use crate::plan::ColumnPlan;
 use crate::settings::{BulkFlowChoice, GroupChoice, MalmquistChoice, MalmquistMethod};
@@ -80,13 +83,18 @@ fn read_profile(path: &Path) -> Result<RadialProfile, String> {
 }
 
 /// Correct the distances of `input` for Malmquist bias in place. Returns the factor
-/// E[r|d]/d and the corrected distance value per row, and a note for the summary.
+/// E[r|d]/d and the corrected distance value per row, and a note for the summary. Distances
+/// (D_L, D_C) and μ take the mean of r, E[r|d]; η, a logarithm, takes the mean of ln r,
+/// E[ln r|d] (for the homogeneous case ln d + 3Δ², an η shift of −3Δ²/ln 10), so that the
+/// η fitted by outliers and the bulk flow is not over-corrected by 0.5Δ²/ln 10. The profile
+/// is looked up at the measured distance, for η from D_C(z_cmb) (η's own definition).
 pub fn apply_malmquist(
     input: &mut InputColumns,
     choice: &MalmquistChoice,
-    cosmology: &Cosmology,
-    length_factor: f64,
+    ctx: &ObjectContext<'_>,
 ) -> Result<(Vec<f64>, Vec<f64>, String), String> {
+    let cosmology = ctx.cosmology;
+    let length_factor = ctx.length_unit.from_mpc_factor(cosmology.params());
     let method = if choice.profile.is_some() {
         MalmquistMethod::Profile
     } else {
@@ -129,7 +137,9 @@ pub fn apply_malmquist(
             }
             DistanceKind::Dl | DistanceKind::Dc => q,
             DistanceKind::Eta => {
-                let z = input.z_helio[i].max(1e-6);
+                let z = cmb_redshift_of(ctx, input.ra_deg[i], input.dec_deg[i], input.z_helio[i])
+                    .unwrap_or(f64::NAN)
+                    .max(1e-6);
                 cosmology.comoving_distance(z).unwrap_or(f64::NAN) * 10f64.powf(-q) * length_factor
             }
         };
@@ -141,13 +151,19 @@ pub fn apply_malmquist(
         let c = match input.distance_kind {
             DistanceKind::Mu => q + 5.0 * f.log10(),
             DistanceKind::Dl | DistanceKind::Dc => q * f,
-            DistanceKind::Eta => q - f.log10(),
+            DistanceKind::Eta => {
+                let shift = match &profile {
+                    Some(p) => malmquist_log_shift(d, delta, p).unwrap_or(f64::NAN),
+                    None => homogeneous_malmquist_log_shift(delta),
+                };
+                q - shift / ln10
+            }
         };
         corrected[i] = c;
         input.distance.to_mut()[i] = c;
     }
     let mut note = match method {
-        MalmquistMethod::Homogeneous => "Distances corrected for homogeneous Malmquist bias, E[r|d] = d exp(3.5 Δ²) (Lynden-Bell et al. 1988); v_pec uses the corrected distance, the input column keeps the uncorrected one.".to_string(),
+        MalmquistMethod::Homogeneous => "Distances corrected for homogeneous Malmquist bias, E[r|d] = d exp(3.5 Δ²) (Lynden-Bell et al. 1988), η by the mean of ln r, E[ln r|d] = ln d + 3Δ²; v_pec uses the corrected distance, the input column keeps the uncorrected one.".to_string(),
         MalmquistMethod::Profile => format!(
             "Distances corrected for Malmquist bias with the density profile {} (general form, Lynden-Bell et al. 1988); v_pec uses the corrected distance.",
             choice.profile.as_deref().unwrap_or("")
@@ -240,15 +256,7 @@ pub fn group_table(
         error_missing: g.distance_err.iter().map(|e| !e.is_finite()).collect(),
     };
     let malmquist_note = match malmquist {
-        Some(m) => Some(
-            apply_malmquist(
-                &mut group_input,
-                m,
-                ctx.cosmology,
-                ctx.length_unit.from_mpc_factor(ctx.cosmology.params()),
-            )?
-            .2,
-        ),
+        Some(m) => Some(apply_malmquist(&mut group_input, m, ctx)?.2),
         None => None,
     };
     for gi in 0..n {
