@@ -105,3 +105,211 @@ fn monte_carlo_draws_the_intrinsic_scatter() {
         );
     }
 }
+
+/// A galaxy at rest in the CMB frame beyond the maximum of D_A (z ≈ 1.6 for Ω_m = 0.3) gets
+/// v_pec ≈ 0 under every convention: the `full` inversion goes through D_A, which has two
+/// roots there, and the one consistent with the observed redshift is taken. D_M at these
+/// redshifts is astropy's (fixture `distances.csv`, flat ΛCDM H0 = 70, Ω_m = 0.3, astropy
+/// 8.0.2); at rest 1 + z_cmb = 1 + z_cos, so D_L = (1 + z_helio) D_M(z_cos) in the observed
+/// and full conventions and (1 + z_cos) D_M(z_cos) in the cosmological one.
+#[test]
+fn galaxies_at_rest_beyond_the_angular_diameter_maximum() {
+    use flowsift::physics::redshift::{Cmb, Redshift};
+    use flowsift::physics::restframe::{default_apex, Boost};
+    use flowsift::physics::sky::{Direction, Icrs, SkyRotations};
+    let text = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/distances.csv"),
+    )
+    .unwrap();
+    let header: Vec<&str> = text
+        .lines()
+        .find(|l| l.starts_with("model,"))
+        .unwrap()
+        .split(',')
+        .collect();
+    let col = |n: &str| header.iter().position(|h| *h == n).unwrap();
+    let rows: Vec<(f64, f64)> = text
+        .lines()
+        .filter(|l| l.starts_with("flat_lcdm,70,0.29999999999999999,"))
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (f[col("z")].parse().unwrap(), f[col("d_m")].parse().unwrap())
+        })
+        .filter(|(z, _): &(f64, f64)| *z > 1.7)
+        .collect();
+    assert!(rows.len() >= 3, "fixture rows at z > 1.7: {rows:?}");
+    let boost = Boost::<Cmb>::new(&default_apex("cmb")).unwrap();
+    let rot = SkyRotations::default();
+    let (ra, dec) = (150.0, 20.0);
+    let gal = rot
+        .icrs_to_galactic
+        .apply(&Direction::<Icrs>::from_lon_lat_deg(ra, dec).unwrap());
+    let dir = tempfile::tempdir().unwrap();
+    for convention in ["observed", "cosmological", "full"] {
+        let mut csv = String::from("ra,dec,z_helio,mu\n");
+        for (z, d_m) in &rows {
+            let z_helio = boost
+                .to_heliocentric(Redshift::<Cmb>::new(*z).unwrap(), &gal)
+                .value();
+            let d_l = match convention {
+                "cosmological" => (1.0 + z) * d_m,
+                _ => (1.0 + z_helio) * d_m,
+            };
+            csv.push_str(&format!(
+                "{ra},{dec},{z_helio},{}\n",
+                5.0 * d_l.log10() + 25.0
+            ));
+        }
+        let input = dir.path().join(format!("{convention}.csv"));
+        std::fs::write(&input, csv).unwrap();
+        let out = dir.path().join(format!("{convention}_out.csv"));
+        flowsift()
+            .args([
+                "velocities",
+                input.to_str().unwrap(),
+                "-o",
+                out.to_str().unwrap(),
+                "--dl-convention",
+                convention,
+            ])
+            .assert()
+            .success();
+        for (i, v) in f64s(&out, "v_pec").iter().enumerate() {
+            assert!(
+                v.abs() < 1.0,
+                "{convention}, z = {}: v_pec = {v} km/s",
+                rows[i].0
+            );
+        }
+    }
+}
+
+/// Angular-diameter distances as input (`--distance-kind da`, column `da`): a galaxy at
+/// rest whose D_A is astropy's D_A(z) (fixture `distances.csv`, flat ΛCDM H0 = 70,
+/// Ω_m = 0.3, astropy 8.0.2) gets v_pec ≈ 0 in the cosmological convention, on both sides of
+/// the D_A maximum; in the observed and full conventions, where the observer's redshift
+/// enters by Etherington's reciprocity D_L = (1 + z_obs)² D_A (Etherington 1933), at rest
+/// D_A = D_M(z)/(1 + z_helio) = d_a (1 + z)/(1 + z_helio).
+#[test]
+fn angular_diameter_distances_at_rest() {
+    use flowsift::physics::redshift::{Cmb, Redshift};
+    use flowsift::physics::restframe::{default_apex, Boost};
+    use flowsift::physics::sky::{Direction, Icrs, SkyRotations};
+    let text = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/distances.csv"),
+    )
+    .unwrap();
+    let header: Vec<&str> = text
+        .lines()
+        .find(|l| l.starts_with("model,"))
+        .unwrap()
+        .split(',')
+        .collect();
+    let col = |n: &str| header.iter().position(|h| *h == n).unwrap();
+    let rows: Vec<(f64, f64)> = text
+        .lines()
+        .filter(|l| l.starts_with("flat_lcdm,70,0.29999999999999999,"))
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (f[col("z")].parse().unwrap(), f[col("d_a")].parse().unwrap())
+        })
+        .filter(|(z, _): &(f64, f64)| *z >= 0.01)
+        .collect();
+    let boost = Boost::<Cmb>::new(&default_apex("cmb")).unwrap();
+    let rot = SkyRotations::default();
+    let (ra, dec) = (40.0, -35.0);
+    let gal = rot
+        .icrs_to_galactic
+        .apply(&Direction::<Icrs>::from_lon_lat_deg(ra, dec).unwrap());
+    let dir = tempfile::tempdir().unwrap();
+    for convention in ["cosmological", "observed", "full"] {
+        let mut csv = String::from("ra,dec,z_helio,da\n");
+        for (z, d_a) in &rows {
+            let z_helio = boost
+                .to_heliocentric(Redshift::<Cmb>::new(*z).unwrap(), &gal)
+                .value();
+            let da = match convention {
+                "cosmological" => *d_a,
+                _ => d_a * (1.0 + z) / (1.0 + z_helio),
+            };
+            csv.push_str(&format!("{ra},{dec},{z_helio},{da}\n"));
+        }
+        let input = dir.path().join(format!("{convention}.csv"));
+        std::fs::write(&input, csv).unwrap();
+        let out = dir.path().join(format!("{convention}_out.csv"));
+        flowsift()
+            .args([
+                "velocities",
+                input.to_str().unwrap(),
+                "-o",
+                out.to_str().unwrap(),
+                "--dl-convention",
+                convention,
+            ])
+            .assert()
+            .success();
+        let z_cos = f64s(&out, "z_cos");
+        for (i, v) in f64s(&out, "v_pec").iter().enumerate() {
+            assert!(
+                v.abs() < 1.0,
+                "{convention}, z = {}: v_pec = {v} km/s",
+                rows[i].0
+            );
+            assert!((z_cos[i] - rows[i].0).abs() < 1e-8 * (1.0 + rows[i].0));
+        }
+    }
+}
+
+/// A D_A input and the D_L that Etherington's reciprocity makes of it, D_L = (1 + z_helio)²
+/// D_A (Etherington 1933), give the same velocity and error in the observed and full
+/// conventions.
+#[test]
+fn angular_diameter_and_luminosity_inputs_agree_by_reciprocity() {
+    let zh: f64 = 0.042;
+    let (da, da_err) = (165.0, 20.0);
+    let k = (1.0 + zh) * (1.0 + zh);
+    let run = |args: &[String]| -> serde_json::Value {
+        let out = flowsift().args(args).assert().success();
+        serde_json::from_slice(&out.get_output().stdout).unwrap()
+    };
+    for convention in ["observed", "full"] {
+        let base = |extra: [String; 4]| {
+            let mut a: Vec<String> = [
+                "galaxy",
+                "--ra",
+                "200",
+                "--dec",
+                "10",
+                "--z-helio",
+                "0.042",
+                "--json",
+                "--dl-convention",
+                convention,
+            ]
+            .iter()
+            .map(|s| s.to_string())
+            .collect();
+            a.extend(extra);
+            a
+        };
+        let a = run(&base([
+            "--da".into(),
+            da.to_string(),
+            "--da-err".into(),
+            da_err.to_string(),
+        ]));
+        let b = run(&base([
+            "--dl".into(),
+            (k * da).to_string(),
+            "--dl-err".into(),
+            (k * da_err).to_string(),
+        ]));
+        for key in ["v_pec", "v_pec_err", "z_cos"] {
+            let (x, y) = (a[key].as_f64().unwrap(), b[key].as_f64().unwrap());
+            assert!(
+                (x - y).abs() < 1e-9 * (1.0 + y.abs()),
+                "{convention} {key}: {x} vs {y}"
+            );
+        }
+    }
+}

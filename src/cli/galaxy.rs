@@ -63,6 +63,14 @@ pub struct GalaxyArgs {
         group = "distance"
     )]
     pub dc: Option<f64>,
+    /// Angular-diameter distance (Mpc, or h⁻¹ Mpc), e.g. from a size-based indicator.
+    #[arg(
+        long,
+        value_name = "MPC",
+        allow_negative_numbers = true,
+        group = "distance"
+    )]
+    pub da: Option<f64>,
     /// Log-distance ratio η = log10(D_C(z_cmb)/D_C(z_cos)).
     #[arg(
         long,
@@ -95,6 +103,14 @@ pub struct GalaxyArgs {
         allow_negative_numbers = true
     )]
     pub dc_err: Option<f64>,
+    /// 1σ error of --da.
+    #[arg(
+        long = "da-err",
+        value_name = "MPC",
+        requires = "da",
+        allow_negative_numbers = true
+    )]
+    pub da_err: Option<f64>,
     /// 1σ error of --eta.
     #[arg(
         long = "eta-err",
@@ -115,12 +131,17 @@ pub struct GalaxyArgs {
 }
 
 pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
-    let (kind, value, error) = match (a.mu, a.dl, a.dc, a.eta) {
+    let (kind, value, error) = match (a.mu, a.dl, a.dc, a.da, a.eta) {
         (Some(v), ..) => (DistanceKind::Mu, v, a.mu_err),
         (_, Some(v), ..) => (DistanceKind::Dl, v, a.dl_err),
-        (_, _, Some(v), _) => (DistanceKind::Dc, v, a.dc_err),
+        (_, _, Some(v), ..) => (DistanceKind::Dc, v, a.dc_err),
+        (_, _, _, Some(v), _) => (DistanceKind::Da, v, a.da_err),
         (.., Some(v)) => (DistanceKind::Eta, v, a.eta_err),
-        _ => return Err(anyhow!("give one distance: --mu, --dl, --dc or --eta")),
+        _ => {
+            return Err(anyhow!(
+                "give one distance: --mu, --dl, --dc, --da or --eta"
+            ))
+        }
     };
     let plan = plan_galaxy(GalaxyOrder {
         ra: a.ra.clone(),

@@ -228,7 +228,7 @@ pub struct DistanceFlags {
         help_heading = "Columns"
     )]
     pub distance: Option<String>,
-    /// What the distance column holds: mu (mag), dl or dc (Mpc or Mpc/h), eta.
+    /// What the distance column holds: mu (mag), dl, dc or da (Mpc or Mpc/h), eta.
     #[arg(
         long = "distance-kind",
         value_enum,
@@ -267,6 +267,7 @@ pub enum KindArg {
     Dl,
     Dc,
     Eta,
+    Da,
 }
 
 impl SkyRedshiftFlags {
@@ -299,6 +300,7 @@ impl DistanceFlags {
             distance_kind: self.distance_kind.map(|k| match k {
                 KindArg::Mu => DistanceKind::Mu,
                 KindArg::Dl => DistanceKind::Dl,
+                KindArg::Da => DistanceKind::Da,
                 KindArg::Dc => DistanceKind::Dc,
                 KindArg::Eta => DistanceKind::Eta,
             }),

@@ -127,7 +127,7 @@ pub fn combine(m: &Members<'_>) -> Groups {
         let q_of = |i: usize| -> (f64, f64) {
             match m.kind {
                 DistanceKind::Mu | DistanceKind::Eta => (m.distance[i], m.distance_err[i]),
-                DistanceKind::Dl | DistanceKind::Dc => {
+                DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da => {
                     (m.distance[i].ln(), m.distance_err[i] / m.distance[i])
                 }
             }
@@ -149,7 +149,7 @@ pub fn combine(m: &Members<'_>) -> Groups {
         };
         let (d, ed) = match m.kind {
             DistanceKind::Mu | DistanceKind::Eta => (q, eq),
-            DistanceKind::Dl | DistanceKind::Dc => (q.exp(), q.exp() * eq),
+            DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da => (q.exp(), q.exp() * eq),
         };
         g.distance.push(d);
         g.distance_err.push(ed);

@@ -749,6 +749,46 @@ impl Cosmology {
         Ok(u.exp_m1())
     }
 
+    /// Redshift of the maximum of D_A (the top of the table when D_A keeps rising within it).
+    pub fn z_angular_peak(&self) -> f64 {
+        self.u_ang_limit.exp_m1()
+    }
+
+    /// Redshift beyond the D_A maximum (the upper branch, where D_A falls with z) at which
+    /// D_A equals `da` Mpc; bisection in u = ln(1 + z) to the resolution of doubles, then one
+    /// Newton step. An error when the table has no upper branch or `da` is off it.
+    pub fn z_from_angular_diameter_upper(&self, da: f64) -> Result<f64, PhysicsError> {
+        check_distance("angular-diameter distance", da)?;
+        let (mut lo, mut hi) = (self.u_ang_limit, self.u_max);
+        let f = |u: f64| self.angular_at_u(u).0 - da;
+        if !(hi > lo && f(lo) >= 0.0 && f(hi) <= 0.0) {
+            return Err(PhysicsError::DistanceOutOfReach {
+                what: "angular-diameter distance (on the branch beyond the D_A maximum)",
+                distance: da,
+                z_max: self.u_max.exp_m1(),
+            });
+        }
+        for _ in 0..200 {
+            let mid = 0.5 * (lo + hi);
+            if mid <= lo || mid >= hi {
+                break;
+            }
+            if f(mid) > 0.0 {
+                lo = mid;
+            } else {
+                hi = mid;
+            }
+        }
+        let u = 0.5 * (lo + hi);
+        let (v, dv) = self.angular_at_u(u);
+        let u = if dv != 0.0 {
+            (u - (v - da) / dv).clamp(lo, hi)
+        } else {
+            u
+        };
+        Ok(u.exp_m1())
+    }
+
     /// Largest u up to which g keeps increasing (g′ > 0 from 0): the first node where the
     /// derivative turns, refined by bisection. Run once per cosmology.
     fn increasing_limit(&self, g: &impl Fn(f64) -> (f64, f64)) -> f64 {

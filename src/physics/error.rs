@@ -8,6 +8,12 @@ use thiserror::Error;
 pub enum PhysicsError {
     #[error("{quantity} is not a finite number ({value})")]
     NotFinite { quantity: &'static str, value: f64 },
+    #[error("the distance has two cosmological redshifts, z = {lower} and z = {upper}, on either side of the maximum of the angular-diameter distance, and both imply a peculiar velocity below {bound_km_s} km/s")]
+    TwoDistanceSolutions {
+        lower: f64,
+        upper: f64,
+        bound_km_s: f64,
+    },
     #[error("redshift {value} is not above -1 (1 + z must be positive)")]
     RedshiftNotAboveMinusOne { value: f64 },
     #[error("latitude {value}° is outside [-90°, 90°] ({quantity})")]

@@ -74,6 +74,8 @@ pub enum DistanceKind {
     Dc,
     /// Log-distance ratio η = log10(D_C(z_cmb)/D_C(z_cos)).
     Eta,
+    /// Angular-diameter distance (size-based indicators such as the Fundamental Plane), Mpc.
+    Da,
 }
 
 impl DistanceKind {
@@ -84,6 +86,7 @@ impl DistanceKind {
             DistanceKind::Dl => "dl",
             DistanceKind::Dc => "dc",
             DistanceKind::Eta => "eta",
+            DistanceKind::Da => "da",
         }
     }
 }
@@ -163,10 +166,12 @@ fn luminosity_input(d: &Distance) -> Result<(f64, f64), PhysicsError> {
             let dl = luminosity_distance_of(d.value);
             Ok((dl, dl * LN10 / 5.0))
         }
-        DistanceKind::Dl | DistanceKind::Dc if d.value <= 0.0 => Err(PhysicsError::NotPositive {
-            quantity: "distance",
-            value: d.value,
-        }),
+        DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da if d.value <= 0.0 => {
+            Err(PhysicsError::NotPositive {
+                quantity: "distance",
+                value: d.value,
+            })
+        }
         DistanceKind::Dl => Ok((d.value, 1.0)),
         _ => Ok((f64::NAN, f64::NAN)),
     }
@@ -194,15 +199,62 @@ fn invert_for_redshift(
     let zh1 = obs.z_helio.one_plus();
     let zc1 = obs.z_cmb.one_plus();
     match d.kind {
+        // A D_A input: by Etherington's reciprocity D_L = (1 + z_obs)² D_A for any motions
+        // (Etherington 1933, Phil. Mag. 15, 761), so with the observer's redshift z_helio the
+        // observed and full conventions are those of D_L = (1 + z_helio)² D_A; the
+        // cosmological convention ignores all motion, D_A = D_M(z_cos)/(1 + z_cos).
+        DistanceKind::Da => match convention {
+            DlConvention::Cosmological => angular_root(cosmo, d.value, obs.z_cmb.value()),
+            DlConvention::Observed => cosmo.z_from_transverse(d.value * zh1),
+            DlConvention::Full => angular_root(cosmo, d.value * zh1 / zc1, obs.z_cmb.value()),
+        },
         DistanceKind::Mu | DistanceKind::Dl => match convention {
             DlConvention::Cosmological => cosmo.z_from_luminosity(d_l),
             DlConvention::Observed => cosmo.z_from_transverse(d_l / zh1),
-            DlConvention::Full => cosmo.z_from_angular_diameter(d_l / (zh1 * zc1)),
+            DlConvention::Full => angular_root(cosmo, d_l / (zh1 * zc1), obs.z_cmb.value()),
         },
         DistanceKind::Dc => cosmo.z_from_comoving(d.value),
         DistanceKind::Eta => cosmo
             .z_from_comoving(cosmo.comoving_distance(obs.z_cmb.value())? * 10f64.powf(-d.value)),
     }
+}
+
+/// Peculiar velocities beyond this, km/s, make a root of the D_A inversion inadmissible when
+/// the other root is admissible (no galaxy's peculiar velocity approaches it; common practice).
+pub const ADMISSIBLE_PECULIAR_SPEED_KM_S: f64 = 10_000.0;
+
+/// z_cos from an angular-diameter distance. D_A peaks (near z ≈ 1.6 for Ω_m = 0.3), so a
+/// distance below the peak value has a root on each side of it; the root consistent with
+/// the observed redshift is the one nearest z_cmb in ln(1 + z). When both roots imply
+/// peculiar speeds below [`ADMISSIBLE_PECULIAR_SPEED_KM_S`] the distance cannot tell them
+/// apart and the object gets [`PhysicsError::TwoDistanceSolutions`].
+pub fn angular_root(cosmo: &Cosmology, d_a: f64, z_cmb: f64) -> Result<f64, PhysicsError> {
+    let lower = cosmo.z_from_angular_diameter(d_a)?;
+    let uc = z_cmb.ln_1p();
+    let u_peak = cosmo.z_angular_peak().ln_1p();
+    // The upper root lies beyond the peak: it can be nearer only if the peak is.
+    if (lower.ln_1p() - uc).abs() <= (u_peak - uc).abs() {
+        return Ok(lower);
+    }
+    let Ok(upper) = cosmo.z_from_angular_diameter_upper(d_a) else {
+        return Ok(lower);
+    };
+    let speed = |z: f64| {
+        crate::physics::redshift::doppler_velocity_of((1.0 + z_cmb) / (1.0 + z) - 1.0).abs()
+    };
+    let bound = ADMISSIBLE_PECULIAR_SPEED_KM_S;
+    if speed(lower) < bound && speed(upper) < bound {
+        return Err(PhysicsError::TwoDistanceSolutions {
+            lower,
+            upper,
+            bound_km_s: bound,
+        });
+    }
+    Ok(if (upper.ln_1p() - uc).abs() < (lower.ln_1p() - uc).abs() {
+        upper
+    } else {
+        lower
+    })
 }
 
 fn solve_cosmological(
@@ -211,6 +263,26 @@ fn solve_cosmological(
     convention: DlConvention,
 ) -> Result<CosmologicalSolution, PhysicsError> {
     let d = obs.distance;
+    if d.kind == DistanceKind::Da && convention != DlConvention::Cosmological {
+        // D_L = (1 + z_helio)² D_A (Etherington 1933): solve as a D_L input, then carry
+        // z_helio's part in D_L into ∂z_cos/∂z_helio.
+        luminosity_input(&d)?;
+        let zh1 = obs.z_helio.one_plus();
+        let as_dl = Observation {
+            distance: Distance {
+                kind: DistanceKind::Dl,
+                value: zh1 * zh1 * d.value,
+                error: zh1 * zh1 * d.error,
+            },
+            ..*obs
+        };
+        let s = solve_cosmological(cosmo, &as_dl, convention)?;
+        return Ok(CosmologicalSolution {
+            dz_dq: s.dz_dq * zh1 * zh1,
+            dz_dzh: s.dz_dzh + s.dz_dq * 2.0 * zh1 * d.value,
+            ..s
+        });
+    }
     let (d_l, dl_dq) = luminosity_input(&d)?;
     let z = invert_for_redshift(cosmo, obs, convention, d_l)?;
     let zh1 = obs.z_helio.one_plus();
@@ -242,6 +314,11 @@ fn solve_cosmological(
                 )
             }
         },
+        // G = D_M/(1+z) = D_A (the cosmological convention; the others went through D_L).
+        DistanceKind::Da => {
+            let g_z = -dm / ((1.0 + z) * (1.0 + z)) + dm_z / (1.0 + z);
+            (1.0 / g_z, 0.0, 0.0, (1.0 + z) * dm)
+        }
         // G = D_C = d.
         DistanceKind::Dc => (1.0 / dc_z, 0.0, 0.0, (1.0 + z) * dm),
         // G = D_C = D_C(z_cmb) 10^−η.
@@ -405,11 +482,17 @@ mod tests {
             DlConvention::Cosmological,
             DlConvention::Full,
         ] {
-            for kind in [DistanceKind::Mu, DistanceKind::Dc, DistanceKind::Eta] {
+            for kind in [
+                DistanceKind::Mu,
+                DistanceKind::Dc,
+                DistanceKind::Eta,
+                DistanceKind::Da,
+            ] {
                 let value = match kind {
                     DistanceKind::Mu => 36.2,
                     DistanceKind::Dc => 170.0,
                     DistanceKind::Eta => 0.03,
+                    DistanceKind::Da => 160.0,
                     DistanceKind::Dl => unreachable!(),
                 };
                 let zh = 0.041;

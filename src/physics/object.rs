@@ -127,7 +127,10 @@ pub fn evaluate_with(
             value: distance.error,
         });
     }
-    if matches!(distance.kind, DistanceKind::Dl | DistanceKind::Dc) {
+    if matches!(
+        distance.kind,
+        DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da
+    ) {
         if !(distance.value.is_finite() && distance.value > 0.0) {
             return Err(PhysicsError::NotPositive {
                 quantity: "distance",

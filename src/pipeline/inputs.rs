@@ -260,7 +260,10 @@ pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'
             worst(s, RowStatus::RedshiftOutOfRange);
         }
         if dist_c[i] == 0
-            && matches!(plan.distance_kind, DistanceKind::Dl | DistanceKind::Dc)
+            && matches!(
+                plan.distance_kind,
+                DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da
+            )
             && dist[i] <= 0.0
         {
             worst(s, RowStatus::NonPositiveDistance);

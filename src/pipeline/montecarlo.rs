@@ -148,17 +148,30 @@ struct Draws {
     v_all: Vec<f64>,
 }
 
-/// Which inversion turns the target into z_cos.
+/// Which inversion turns the target into z_cos. `upper`: the object's D_A root lies beyond
+/// the D_A maximum (chosen once per object from its measured values, as the analytic path
+/// chooses it, so that every draw stays on that branch).
 fn invert(
     ctx: &ObjectContext<'_>,
     kind: DistanceKind,
     target: f64,
+    upper: bool,
 ) -> Result<f64, crate::physics::PhysicsError> {
     let c = ctx.cosmology;
     match kind {
-        DistanceKind::Mu | DistanceKind::Dl => match ctx.options.convention {
+        // A D_A input in the cosmological convention inverts D_A itself; in the others it
+        // was turned into D_L = (1 + z_helio)² D_A (Etherington 1933) per draw.
+        DistanceKind::Da if ctx.options.convention == DlConvention::Cosmological => {
+            if upper {
+                c.z_from_angular_diameter_upper(target)
+            } else {
+                c.z_from_angular_diameter(target)
+            }
+        }
+        DistanceKind::Mu | DistanceKind::Dl | DistanceKind::Da => match ctx.options.convention {
             DlConvention::Observed => c.z_from_transverse(target),
             DlConvention::Cosmological => c.z_from_luminosity(target),
+            DlConvention::Full if upper => c.z_from_angular_diameter_upper(target),
             DlConvention::Full => c.z_from_angular_diameter(target),
         },
         DistanceKind::Dc | DistanceKind::Eta => c.z_from_comoving(target),
@@ -313,13 +326,19 @@ fn one_object(
     let sq_rel = sq / q0;
     let exact_boost = ctx.method == BoostMethod::Exact;
     match kind {
-        DistanceKind::Mu | DistanceKind::Dl => {
+        DistanceKind::Da if convention == DlConvention::Cosmological => {
+            for (x, g) in d.x.iter_mut().zip(&d.gq) {
+                *x = ln_q + sq_rel * g + 0.0 * *x;
+            }
+        }
+        DistanceKind::Mu | DistanceKind::Dl | DistanceKind::Da => {
             for ((x, g), zc1) in d.x.iter_mut().zip(&d.gq).zip(&d.zc1) {
-                let ln_dl = if kind == DistanceKind::Mu {
-                    (q0 + sq * g - 25.0) * ln10_5
-                } else {
+                let ln_dl = match kind {
+                    DistanceKind::Mu => (q0 + sq * g - 25.0) * ln10_5,
+                    // D_L = (1 + z_helio)² D_A; x holds ln(1 + z_helio) of the draw.
+                    DistanceKind::Da => ln_q + sq_rel * g + 2.0 * *x,
                     // Log-normal: σ_lnD = σ_D / D.
-                    ln_q + sq_rel * g
+                    _ => ln_q + sq_rel * g,
                 };
                 // NaN (a failed draw) propagates in every branch.
                 *x = match convention {
@@ -366,7 +385,26 @@ fn one_object(
             .fold((f64::INFINITY, f64::NEG_INFINITY), |(a, b), x| {
                 (if *x < a { *x } else { a }, if *x > b { *x } else { b })
             });
-    let mut exact = |x: f64| invert(ctx, kind, x.exp());
+    let da_cosmological = kind == DistanceKind::Da && convention == DlConvention::Cosmological;
+    let upper = (da_cosmological
+        || (convention == DlConvention::Full
+            && matches!(kind, DistanceKind::Mu | DistanceKind::Dl | DistanceKind::Da)))
+        && {
+            let zc1 = match ctx.method {
+                BoostMethod::Exact => (1.0 + z0) * boost_factor,
+                BoostMethod::LegacyAdditive => legacy(z0),
+            };
+            let d_a0 = match kind {
+                DistanceKind::Da if da_cosmological => q0 / factor,
+                DistanceKind::Da => q0 / factor * (1.0 + z0) / zc1,
+                DistanceKind::Mu => ((q0 - 25.0) * ln10_5).exp() / ((1.0 + z0) * zc1),
+                _ => q0 / factor / ((1.0 + z0) * zc1),
+            };
+            crate::physics::estimators::angular_root(ctx.cosmology, d_a0, zc1 - 1.0)
+                .map(|z| z > ctx.cosmology.z_angular_peak())
+                .unwrap_or(false)
+        };
+    let mut exact = |x: f64| invert(ctx, kind, x.exp(), upper);
     let mut fitted = None;
     if lo.is_finite() && hi.is_finite() && lo <= hi {
         let probe = lo + 0.377 * (hi - lo);

@@ -23,10 +23,13 @@ pub enum RowStatus {
     BadError,
     /// No cosmological redshift gives this distance in the chosen cosmology.
     NoCosmologicalSolution,
+    /// Two cosmological redshifts, either side of the D_A maximum, both give this distance
+    /// with a plausible peculiar velocity.
+    TwoDistanceSolutions,
 }
 
 impl RowStatus {
-    pub const ALL: [RowStatus; 10] = [
+    pub const ALL: [RowStatus; 11] = [
         RowStatus::Ok,
         RowStatus::UnparseableValue,
         RowStatus::MissingPosition,
@@ -37,6 +40,7 @@ impl RowStatus {
         RowStatus::NonPositiveDistance,
         RowStatus::BadError,
         RowStatus::NoCosmologicalSolution,
+        RowStatus::TwoDistanceSolutions,
     ];
 
     /// The stable name written to the `status` column.
@@ -52,6 +56,7 @@ impl RowStatus {
             RowStatus::NonPositiveDistance => "non_positive_distance",
             RowStatus::BadError => "bad_error",
             RowStatus::NoCosmologicalSolution => "no_cosmological_solution",
+            RowStatus::TwoDistanceSolutions => "two_distance_solutions",
         }
     }
 
@@ -77,6 +82,7 @@ impl RowStatus {
                 RowStatus::UnparseableValue
             }
             PhysicsError::DistanceOutOfReach { .. } => RowStatus::NoCosmologicalSolution,
+            PhysicsError::TwoDistanceSolutions { .. } => RowStatus::TwoDistanceSolutions,
             PhysicsError::FasterThanLight { .. } | PhysicsError::InvalidCosmology(_) => {
                 RowStatus::NoCosmologicalSolution
             }

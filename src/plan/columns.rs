@@ -374,6 +374,7 @@ fn kind_words(kind: DistanceKind) -> &'static str {
     match kind {
         DistanceKind::Mu => "a distance modulus in mag",
         DistanceKind::Dl => "a luminosity distance in Mpc",
+        DistanceKind::Da => "an angular-diameter distance in Mpc",
         DistanceKind::Dc => "a comoving distance in Mpc",
         DistanceKind::Eta => "a log-distance ratio (no unit)",
         #[allow(unreachable_patterns)]
@@ -438,6 +439,7 @@ pub fn resolve_columns(
         DistanceKind::Dl,
         DistanceKind::Dc,
         DistanceKind::Eta,
+        DistanceKind::Da,
     ];
     let (distance, distance_kind) = match &choice.distance {
         Some(g) => match f.named("distance", g) {
@@ -455,7 +457,7 @@ pub fn resolve_columns(
                     Some(k) => (Some(r), Some(k)),
                     None => {
                         f.problems.push(format!(
-                            "say what the distance column '{}' holds with --distance-kind mu|dl|dc|eta",
+                            "say what the distance column '{}' holds with --distance-kind mu|dl|dc|da|eta",
                             r.column
                         ));
                         (None, None)
@@ -487,7 +489,7 @@ pub fn resolve_columns(
                         Some(choice.distance_kind.unwrap_or(DistanceKind::Mu)),
                     ),
                     None => {
-                        f.problems.push("no distance column: expected one named mu, dl, dc or eta (or --distance-column with --distance-kind)".into());
+                        f.problems.push("no distance column: expected one named mu, dl, dc, da or eta (or --distance-column with --distance-kind)".into());
                         (None, None)
                     }
                 },
@@ -534,7 +536,9 @@ pub fn resolve_columns(
 
     // Length unit: the flag, checked against the unit card of a dl/dc column; else the card.
     let card = match (&distance, distance_kind) {
-        (Some(d), Some(DistanceKind::Dl | DistanceKind::Dc)) => unit_of(table, &d.column),
+        (Some(d), Some(DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da)) => {
+            unit_of(table, &d.column)
+        }
         _ => None,
     };
     let from_card = match card {

@@ -79,8 +79,10 @@ pub fn plan_galaxy(order: GalaxyOrder) -> Result<GalaxyPlan, String> {
                 value: order.distance
             }
         ));
-    } else if matches!(order.distance_kind, DistanceKind::Dl | DistanceKind::Dc)
-        && order.distance <= 0.0
+    } else if matches!(
+        order.distance_kind,
+        DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da
+    ) && order.distance <= 0.0
     {
         problems.push(format!(
             "{flag} must be a positive distance, got {}",

@@ -121,7 +121,7 @@ pub fn apply_malmquist(
         let (q, e) = (input.distance[i], input.distance_err[i]);
         let delta = match input.distance_kind {
             DistanceKind::Mu => ln10 / 5.0 * e,
-            DistanceKind::Dl | DistanceKind::Dc => e / q,
+            DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da => e / q,
             DistanceKind::Eta => ln10 * e,
         };
         if !(delta.is_finite() && delta > 0.0) {
@@ -135,7 +135,7 @@ pub fn apply_malmquist(
             DistanceKind::Mu => {
                 crate::physics::cosmology::luminosity_distance_of(q) * length_factor
             }
-            DistanceKind::Dl | DistanceKind::Dc => q,
+            DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da => q,
             DistanceKind::Eta => {
                 let z = cmb_redshift_of(ctx, input.ra_deg[i], input.dec_deg[i], input.z_helio[i])
                     .unwrap_or(f64::NAN)
@@ -150,7 +150,7 @@ pub fn apply_malmquist(
         factor[i] = f;
         let c = match input.distance_kind {
             DistanceKind::Mu => q + 5.0 * f.log10(),
-            DistanceKind::Dl | DistanceKind::Dc => q * f,
+            DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da => q * f,
             DistanceKind::Eta => {
                 let shift = match &profile {
                     Some(p) => malmquist_log_shift(d, delta, p).unwrap_or(f64::NAN),
