@@ -313,3 +313,31 @@ fn angular_diameter_and_luminosity_inputs_agree_by_reciprocity() {
         }
     }
 }
+
+/// The ΛCDM expectation of a bulk flow keeps the physical baryon density of Planck 2018,
+/// Ω_b h² = 0.02242 (Planck Collaboration VI 2020, Table 2), fixed when h changes: at
+/// H0 = 70, Ω_b = 0.02242/0.49 = 0.045755 (arithmetic), not Planck's Ω_b = 0.0490 at h = 0.6766.
+#[test]
+fn lcdm_expectation_keeps_the_physical_baryon_density() {
+    let dir = tempfile::tempdir().unwrap();
+    let data =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data/lantern_survey.csv");
+    let out = dir.path().join("v.fits");
+    let assert = flowsift()
+        .args([
+            "velocities",
+            data.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+            "--bulk-flow",
+            "--json",
+        ])
+        .assert()
+        .success();
+    let summary: serde_json::Value = serde_json::from_slice(&assert.get_output().stdout).unwrap();
+    let spectrum = summary["bulk_flow"][0]["lcdm"]["power_spectrum"]
+        .as_str()
+        .unwrap()
+        .to_string();
+    assert!(spectrum.contains("Ω_b = 0.045755"), "{spectrum}");
+}

@@ -11,7 +11,7 @@ use crate::settings::BulkFlowChoice;
 /// own weights on velocities (Watkins, Feldman & Hudson 2009, MNRAS 392, 743) and summed
 /// pair by pair with the k integral taken per separation
 /// ([`lcdm_bulk_flow_covariance_by_separation`](crate::physics::power::lcdm_bulk_flow_covariance_by_separation)), P(k) from the
-/// Eisenstein & Hu (1998) transfer function normalised to σ8, and f = Ω_m^0.55 at z = 0
+/// Eisenstein & Hu (1998) transfer function normalised to σ8, and f = Ω_m^γ at z = 0 with γ from w
 /// (Linder 2005). `positions` are in Mpc; `kappa` turns η weights into velocity weights.
 pub fn lcdm_comparison(
     fit: &BulkFlowFit,
@@ -21,7 +21,7 @@ pub fn lcdm_comparison(
     choice: &BulkFlowChoice,
 ) -> Result<LcdmComparison, String> {
     use crate::physics::power::{
-        growth_rate, lcdm_bulk_flow_covariance_by_separation, LinearPower, PowerParams,
+        growth_rate_of, lcdm_bulk_flow_covariance_by_separation, LinearPower, PowerParams,
     };
     let p = cosmology.params();
     let h = p.little_h();
@@ -29,7 +29,10 @@ pub fn lcdm_comparison(
     let params = PowerParams {
         h,
         omega_m: p.omega_m,
-        omega_b: choice.omega_b.unwrap_or(base.omega_b),
+        // Default: the Planck 2018 physical baryon density Ω_b h² held fixed at this h.
+        omega_b: choice
+            .omega_b
+            .unwrap_or(base.omega_b * base.h * base.h / (h * h)),
         t_cmb: base.t_cmb,
         n_s: choice.n_s.unwrap_or(base.n_s),
         sigma8: choice.sigma8.unwrap_or(base.sigma8),
@@ -41,7 +44,7 @@ pub fn lcdm_comparison(
         ));
     }
     let power = LinearPower::new(params);
-    let f = growth_rate(p.omega_m, p.omega_de, 0.0);
+    let f = growth_rate_of(p, 0.0);
     let positions_h: Vec<[f64; 3]> = positions_mpc
         .iter()
         .map(|r| [r[0] * h, r[1] * h, r[2] * h])
@@ -74,7 +77,7 @@ pub fn lcdm_comparison(
             positions_mpc.len()
         ),
         power_spectrum: format!(
-            "Eisenstein & Hu (1998) with baryon wiggles, h = {}, Ω_m = {}, Ω_b = {}, n_s = {}, σ8 = {}; f = Ω_m^0.55 = {:.4}",
+            "Eisenstein & Hu (1998) with baryon wiggles, h = {}, Ω_m = {}, Ω_b = {}, n_s = {}, σ8 = {}; f = Ω_m^γ (Linder 2005) = {:.4}",
             params.h, params.omega_m, params.omega_b, params.n_s, params.sigma8, f
         ),
     })

@@ -5,7 +5,7 @@ use crate::catalogue::field_io::{write_field_fits, write_field_table};
 use crate::catalogue::{write_table, Format, WriteOptions};
 use crate::physics::cosmology::LengthUnit;
 use crate::physics::field::{hubble_per_length, AnalyticField, FieldAxes};
-use crate::physics::power::growth_rate;
+use crate::physics::power::growth_rate_of;
 use crate::physics::sky::SkyRotations;
 use crate::plan::{FieldPlan, MockPlan};
 
@@ -82,7 +82,7 @@ pub fn run_field(plan: &FieldPlan) -> Result<f64, String> {
             .iter()
             .map(crate::settings::InfallChoice::centre)
             .collect(),
-        growth_rate: growth_rate(params.omega_m, params.omega_de, 0.0),
+        growth_rate: growth_rate_of(&params, 0.0),
         h0_km_s_per_length: hubble_per_length(&params, plan.unit),
         axes: plan.axes,
         length_unit: plan.unit,

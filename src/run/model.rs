@@ -8,7 +8,7 @@ use crate::physics::field::{
     hubble_per_length, velocity_from_density, velocity_from_density_isolated, AnalyticField,
     DensityBoundary, FieldAxes, FlowModel, InfallCentre, VelocityGrid,
 };
-use crate::physics::power::growth_rate;
+use crate::physics::power::growth_rate_of;
 use crate::settings::{InfallChoice, ModelChoice, DEFAULT_SIGMA_V_KM_S};
 
 /// The model and what it is, or None when the choice names no model part.
@@ -40,10 +40,10 @@ pub fn build_model(
                 (Some(b), None) => (b, format!("read as a galaxy density contrast, β = {b}")),
                 (None, Some(f)) => (f, format!("read as a matter density contrast, f = {f}")),
                 (None, None) => {
-                    let f = growth_rate(params.omega_m, params.omega_de, 0.0);
+                    let f = growth_rate_of(params, 0.0);
                     (
                         f,
-                        format!("read as a matter density contrast, f = Ω_m^0.55 = {f:.4} (Linder 2005)"),
+                        format!("read as a matter density contrast, f = Ω_m^γ = {f:.4} (Linder 2005)"),
                     )
                 }
             };
@@ -98,7 +98,7 @@ pub fn build_model(
         Some(AnalyticField {
             bulk,
             centres,
-            growth_rate: growth_rate(params.omega_m, params.omega_de, 0.0),
+            growth_rate: growth_rate_of(params, 0.0),
             h0_km_s_per_length: hubble_per_length(params, unit),
             axes,
             length_unit: unit,

@@ -200,8 +200,9 @@ impl OutlierChoice {
 
 impl BulkFlowChoice {
     /// Defaults: η space, σ_* fitted (`sigma_star` absent), outliers left out, the ΛCDM
-    /// expectation on, σ8, Ω_b and n_s of Planck 2018 (Planck Collaboration VI 2020,
-    /// Table 2, TT,TE,EE+lowE+lensing+BAO; `physics::power::PowerParams::planck2018`).
+    /// expectation on, σ8 and n_s of Planck 2018 (Planck Collaboration VI 2020, Table 2,
+    /// TT,TE,EE+lowE+lensing+BAO; `physics::power::PowerParams::planck2018`); Ω_b absent means
+    /// Planck 2018's Ω_b h² = 0.02242 held fixed at the run's h.
     pub fn filled(&self) -> BulkFlowChoice {
         let p = crate::physics::power::PowerParams::planck2018();
         BulkFlowChoice {
@@ -210,7 +211,7 @@ impl BulkFlowChoice {
             skip_outliers: Some(self.skip_outliers.unwrap_or(true)),
             lcdm: Some(self.lcdm.unwrap_or(true)),
             sigma8: Some(self.sigma8.unwrap_or(p.sigma8)),
-            omega_b: Some(self.omega_b.unwrap_or(p.omega_b)),
+            omega_b: self.omega_b,
             n_s: Some(self.n_s.unwrap_or(p.n_s)),
         }
     }

@@ -36,8 +36,8 @@ mod window;
 
 pub use bessel::tophat_window;
 pub use spectrum::{
-    growth_rate, tophat_bulk_flow_rms, transfer_eh98, transfer_eh98_no_wiggle, LinearPower,
-    PowerParams,
+    growth_rate, growth_rate_of, tophat_bulk_flow_rms, transfer_eh98, transfer_eh98_no_wiggle,
+    LinearPower, PowerParams,
 };
 pub use window::{
     bulk_flow_window, lcdm_bulk_flow_covariance, lcdm_bulk_flow_covariance_by_separation,

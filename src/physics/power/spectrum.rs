@@ -347,15 +347,36 @@ impl LinearPower {
     }
 }
 
-/// Linear growth rate f = dln D/dln a ≈ Ω_m(z)^0.55 (Linder 2005, astro-ph/0507263, γ = 0.55
-/// for ΛCDM), with Ω_m(z) = Ω_m (1+z)³ / E(z)² and E² = Ω_m (1+z)³ + Ω_k (1+z)² + Ω_de,
-/// Ω_k = 1 − Ω_m − Ω_de (a cosmological constant; no radiation). Against the exact growth
-/// ODE the approximation is good to about 1% for flat ΛCDM at z ≥ 0.
+/// Linear growth rate f = dln D/dln a ≈ Ω_m(z)^γ (Linder 2005, astro-ph/0507263), with
+/// Ω_m(z) = Ω_m (1+z)³ / E(z)² from the full E(z) of `params` (radiation, curvature, CPL
+/// dark energy), and γ = 0.55 + 0.05 [1 + w(z = 1)] for w(z = 1) ≥ −1, 0.55 + 0.02 [1 + w(z = 1)]
+/// below (Linder 2005; from memory), w(z = 1) = w0 + wa/2 for CPL. γ = 0.55 for a cosmological
+/// constant; against the exact growth ODE the approximation is good to about 1% for flat ΛCDM
+/// at z ≥ 0.
+pub fn growth_rate_of(params: &crate::physics::cosmology::CosmologyParams, z: f64) -> f64 {
+    let w1 = params.w0 + 0.5 * params.wa;
+    let gamma = if w1 >= -1.0 {
+        0.55 + 0.05 * (1.0 + w1)
+    } else {
+        0.55 + 0.02 * (1.0 + w1)
+    };
+    (params.omega_m * (1.0 + z).powi(3) / params.e2(z)).powf(gamma)
+}
+
+/// [`growth_rate_of`] for a ΛCDM model given by its matter and cosmological-constant
+/// densities today (no radiation; Ω_k = 1 − Ω_m − Ω_de).
 pub fn growth_rate(omega_m0: f64, omega_de0: f64, z: f64) -> f64 {
-    let a3 = (1.0 + z).powi(3);
-    let omega_k = 1.0 - omega_m0 - omega_de0;
-    let e2 = omega_m0 * a3 + omega_k * (1.0 + z) * (1.0 + z) + omega_de0;
-    (omega_m0 * a3 / e2).powf(0.55)
+    growth_rate_of(
+        &crate::physics::cosmology::CosmologyParams {
+            h0: 70.0,
+            omega_m: omega_m0,
+            omega_de: omega_de0,
+            omega_r: 0.0,
+            w0: -1.0,
+            wa: 0.0,
+        },
+        z,
+    )
 }
 
 /// rms of ONE Cartesian component of the bulk flow (mean velocity) of a top-hat sphere of
@@ -367,6 +388,31 @@ pub fn tophat_bulk_flow_rms(power: &LinearPower, f: f64, radius: f64) -> f64 {
     let h0f = H0_KM_S_PER_MPC_H * f;
     (h0f * h0f / (6.0 * PI * PI) * power.pk_tophat2_integral(radius)).sqrt()
 }
+#[cfg(test)]
+mod growth_tests {
+    use super::*;
+    use crate::physics::cosmology::CosmologyParams;
+
+    /// γ(w) of Linder (2005) (from memory): 0.55 for w = −1, 0.55 + 0.05(1 + w) above,
+    /// 0.55 + 0.02(1 + w) below, with w at z = 1 (w0 + wa/2 for CPL); arithmetic on the formula.
+    #[test]
+    fn growth_index_follows_the_equation_of_state() {
+        let base = CosmologyParams::flat_lcdm(70.0, 0.3);
+        let om_z = |p: &CosmologyParams, z: f64| p.omega_m * (1.0 + z).powi(3) / p.e2(z);
+        assert!((growth_rate_of(&base, 0.5) - om_z(&base, 0.5).powf(0.55)).abs() < 1e-15);
+        assert!((growth_rate_of(&base, 0.0) - growth_rate(0.3, 0.7, 0.0)).abs() < 1e-15);
+        let quint = CosmologyParams { w0: -0.9, ..base };
+        assert!((growth_rate_of(&quint, 0.2) - om_z(&quint, 0.2).powf(0.555)).abs() < 1e-15);
+        let phantom = CosmologyParams {
+            w0: -1.1,
+            wa: -0.2,
+            ..base
+        };
+        // w(z = 1) = −1.2: γ = 0.55 − 0.004.
+        assert!((growth_rate_of(&phantom, 0.0) - om_z(&phantom, 0.0).powf(0.546)).abs() < 1e-15);
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
