@@ -32,7 +32,7 @@
 //!     z_err: 0.0,
 //!     distance: Distance { kind: DistanceKind::Mu, value: 35.4, error: 0.15 },
 //! };
-//! let options = EstimatorOptions { convention: DlConvention::Observed, sigma_star_km_s: 0.0 };
+//! let options = EstimatorOptions { convention: DlConvention::Observed, sigma_star_km_s: 0.0, boost: Default::default() };
 //! let pv = peculiar_velocity(&cosmology, &observation, &options)?;
 //! assert!(pv.z_cos > 0.0 && pv.v_pec_err > 0.0);
 //! println!("v_pec = {:.0} ± {:.0} km/s", pv.v_pec, pv.v_pec_err);

@@ -341,3 +341,36 @@ fn lcdm_expectation_keeps_the_physical_baryon_density() {
         .to_string();
     assert!(spectrum.contains("Ω_b = 0.045755"), "{spectrum}");
 }
+
+/// A distance modulus that reads as a number but names no distance (μ = ±1e20) has no
+/// cosmological solution; it is not an unparseable value.
+#[test]
+fn absurd_moduli_have_no_cosmological_solution() {
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("m.csv");
+    std::fs::write(
+        &input,
+        "ra,dec,z_helio,mu\n10,10,0.02,1e20\n10,10,0.02,-1e20\n10,10,0.02,34\n",
+    )
+    .unwrap();
+    let out = dir.path().join("o.csv");
+    flowsift()
+        .args([
+            "velocities",
+            input.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ])
+        .assert()
+        .success();
+    let text = std::fs::read_to_string(&out).unwrap();
+    let status: Vec<&str> = text
+        .lines()
+        .skip(1)
+        .map(|l| l.rsplit(',').next().unwrap())
+        .collect();
+    assert_eq!(
+        status,
+        ["no_cosmological_solution", "no_cosmological_solution", "ok"]
+    );
+}

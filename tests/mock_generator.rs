@@ -198,6 +198,7 @@ fn noiseless_mock_recovers_true_velocities() {
         let opts = EstimatorOptions {
             convention,
             sigma_star_km_s: 0.0,
+            boost: Default::default(),
         };
         for i in 0..cat.len() {
             // Position as a user would have it: from the catalogue's RA/Dec.

@@ -211,6 +211,7 @@ fn galaxy_velocities_match_reference() {
             &EstimatorOptions {
                 convention,
                 sigma_star_km_s: 0.0,
+                boost: Default::default(),
             },
         )
         .unwrap();

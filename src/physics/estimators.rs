@@ -117,6 +117,9 @@ pub struct EstimatorOptions {
     pub convention: DlConvention,
     /// Intrinsic velocity dispersion σ_* (km/s) added in quadrature to the velocity error.
     pub sigma_star_km_s: f64,
+    /// How z_cmb was made from z_helio, for ∂z_cmb/∂z_helio in the errors: the exact boost
+    /// scales 1 + z (∂ = (1 + z_cmb)/(1 + z_helio)); the additive cz + v cos θ shifts z (∂ = 1).
+    pub boost: crate::physics::restframe::BoostMethod,
 }
 
 /// The result for one object.
@@ -164,6 +167,15 @@ fn luminosity_input(d: &Distance) -> Result<(f64, f64), PhysicsError> {
     match d.kind {
         DistanceKind::Mu => {
             let dl = luminosity_distance_of(d.value);
+            if !(dl.is_finite() && dl > 0.0) {
+                // A modulus that reads as a number but names no distance (μ = 1e20): no
+                // redshift gives it.
+                return Err(PhysicsError::DistanceOutOfReach {
+                    what: "luminosity distance of the distance modulus",
+                    distance: dl,
+                    z_max: f64::INFINITY,
+                });
+            }
             Ok((dl, dl * LN10 / 5.0))
         }
         DistanceKind::Dl | DistanceKind::Dc | DistanceKind::Da if d.value <= 0.0 => {
@@ -364,7 +376,10 @@ pub fn peculiar_velocity(
     let zc1 = obs.z_cmb.one_plus();
     let zcos1 = z_cos.one_plus();
     // dz_cmb/dz_helio: the boost is linear in 1 + z.
-    let k = zc1 / obs.z_helio.one_plus();
+    let k = match options.boost {
+        crate::physics::restframe::BoostMethod::Exact => zc1 / obs.z_helio.one_plus(),
+        crate::physics::restframe::BoostMethod::LegacyAdditive => 1.0,
+    };
     let dzcos_dzh = sol.dz_dzh + sol.dz_dzc * k;
     let dzp_dzh = k / zcos1 - zc1 / (zcos1 * zcos1) * dzcos_dzh;
     let dzp_dq = -zc1 / (zcos1 * zcos1) * sol.dz_dq;
@@ -408,14 +423,17 @@ pub fn low_redshift_velocity(h0: f64, z_cmb: Redshift<Cmb>, d_mpc: f64) -> f64 {
 
 /// The estimator of Watkins & Feldman (2015), MNRAS 450, 1868 (arXiv:1411.6665):
 /// v = c z_mod/(1 + z_mod) · ln(c z_mod / (H0 d)), with
-/// z_mod = z [1 + ½(1 − q0) z − ⅙(1 − q0 − 3q0² + j0) z²], z the CMB-frame redshift and
-/// d the luminosity distance (the bracket is the third-order expansion of H0 D_L/c, Visser
-/// 2004, CQG 21, 2603). The exact form is from memory of the paper; it is offered for
-/// comparison, never used for the main results.
+/// z_mod = z [1 + ½(1 − q0) z − ⅙(1 − q0 − 3q0² + j0 − Ω_k) z²], z the CMB-frame redshift
+/// and d the luminosity distance (the bracket is the third-order expansion of H0 D_L/c,
+/// Visser 2004, CQG 21, 2603, whose curvature term kc²/(H0² a0²) is −Ω_k; it vanishes in a
+/// flat model, and the test below checks it on an open one). The exact form is from memory
+/// of the papers; it is offered for comparison, never used for the main results.
 pub fn watkins_feldman_velocity(cosmo: &Cosmology, z_cmb: Redshift<Cmb>, d_l_mpc: f64) -> f64 {
     let (q0, j0) = cosmo.params().deceleration_jerk();
     let z = z_cmb.value();
-    let z_mod = z * (1.0 + 0.5 * (1.0 - q0) * z - (1.0 - q0 - 3.0 * q0 * q0 + j0) * z * z / 6.0);
+    let omega_k = cosmo.params().omega_k();
+    let z_mod =
+        z * (1.0 + 0.5 * (1.0 - q0) * z - (1.0 - q0 - 3.0 * q0 * q0 + j0 - omega_k) * z * z / 6.0);
     let cz = C_KM_S * z_mod;
     cz / (1.0 + z_mod) * (cz / (cosmo.params().h0 * d_l_mpc)).ln()
 }
@@ -462,6 +480,7 @@ mod tests {
                 let opts = EstimatorOptions {
                     convention: conv,
                     sigma_star_km_s: 0.0,
+                    boost: Default::default(),
                 };
                 let pv = peculiar_velocity(&c, &obs, &opts).unwrap();
                 assert!(
@@ -510,6 +529,7 @@ mod tests {
                 let opts = EstimatorOptions {
                     convention: conv,
                     sigma_star_km_s: 0.0,
+                    boost: Default::default(),
                 };
                 let v = |zh: f64, q: f64| peculiar_velocity(&c, &make(zh, q), &opts).unwrap().v_pec;
                 let (hz, hq) = (1e-7, value * 1e-7);
@@ -529,6 +549,38 @@ mod tests {
         }
     }
 
+    /// Under the additive frame change z_cmb = z_helio + (v/c) cos θ, so ∂z_cmb/∂z_helio = 1:
+    /// the first-order error from σ_z matches finite differences of the calculation with
+    /// z_cmb shifted by the same amount as z_helio (not scaled as by the exact boost).
+    #[test]
+    fn legacy_additive_errors_match_finite_differences() {
+        let c = cosmo();
+        let shift = 0.0012;
+        let opts = EstimatorOptions {
+            convention: DlConvention::Observed,
+            sigma_star_km_s: 0.0,
+            boost: crate::physics::restframe::BoostMethod::LegacyAdditive,
+        };
+        let make = |zh: f64, sz: f64| Observation {
+            z_helio: Redshift::new(zh).unwrap(),
+            z_cmb: Redshift::new(zh + shift).unwrap(),
+            z_err: sz,
+            distance: Distance {
+                kind: DistanceKind::Mu,
+                value: 36.2,
+                error: 0.0,
+            },
+        };
+        let zh = 0.041;
+        let v = |zh: f64| peculiar_velocity(&c, &make(zh, 0.0), &opts).unwrap().v_pec;
+        let h = 1e-7;
+        let expect = ((v(zh + h) - v(zh - h)) / (2.0 * h) * 1.5e-4).abs();
+        let got = peculiar_velocity(&c, &make(zh, 1.5e-4), &opts)
+            .unwrap()
+            .v_pec_err;
+        assert!((got - expect).abs() / expect < 1e-5, "{got} vs {expect}");
+    }
+
     /// A galaxy at rest: the Watkins–Feldman estimator, whose z_mod reproduces H0 D_L/c to
     /// third order (Visser 2004), gives ≈ 0 at z = 0.05; c z − H0 D_L is strongly negative
     /// there (D_L > c z/H0 for q0 < 1).
@@ -542,5 +594,21 @@ mod tests {
         assert!(v.abs() < 5.0, "{v}");
         let naive = low_redshift_velocity(70.0, Redshift::new(z).unwrap(), dl);
         assert!(naive < -200.0, "{naive}");
+    }
+
+    /// In an open model (Ω_m = 0.3, Ω_de = 0.5) the expansion needs its curvature term: at
+    /// rest at z = 0.1 the estimator stays within 5 km/s of zero with it (without it, about
+    /// 13 km/s: the z² term then misses Ω_k z²/6 of H0 D_L/(c z)).
+    #[test]
+    fn watkins_feldman_curvature_term() {
+        let p = CosmologyParams {
+            omega_de: 0.5,
+            ..CosmologyParams::flat_lcdm(70.0, 0.3)
+        };
+        let c = Cosmology::new(p).unwrap();
+        let z = 0.1;
+        let dl = c.luminosity_distance(z).unwrap();
+        let v = watkins_feldman_velocity(&c, Redshift::new(z).unwrap(), dl);
+        assert!(v.abs() < 5.0, "{v}");
     }
 }

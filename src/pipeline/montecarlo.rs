@@ -498,6 +498,7 @@ mod tests {
                 options: EstimatorOptions {
                     convention,
                     sigma_star_km_s: 0.0,
+                    boost: Default::default(),
                 },
                 length_unit: LengthUnit::Mpc,
             };

@@ -109,6 +109,7 @@ pub(crate) fn object_context<'a>(
         options: EstimatorOptions {
             convention: shared.convention,
             sigma_star_km_s: shared.sigma_star,
+            boost: shared.frames.method,
         },
         length_unit,
     }
