@@ -86,11 +86,14 @@ fn flowsift(args: &[&str]) {
 }
 
 fn run(input: &Path, output: &Path) {
+    // The fixture's rows in the observed convention (galaxy_pv.csv).
     flowsift(&[
         "velocities",
         input.to_str().unwrap(),
         "-o",
         output.to_str().unwrap(),
+        "--dl-convention",
+        "observed",
     ]);
 }
 

@@ -110,11 +110,14 @@ fn velocities_find_every_role_in_a_catalogue_service_table() {
     let dir = tempfile::tempdir().unwrap();
     let (input, v_ref) = messy_fits(dir.path(), "mag");
     let out = dir.path().join("out.fits");
+    // The fixture's rows in the observed convention.
     let printed = run_ok(&[
         "velocities",
         input.to_str().unwrap(),
         "-o",
         out.to_str().unwrap(),
+        "--dl-convention",
+        "observed",
     ]);
     assert!(
         printed.contains("UCD stat.error;phot.mag.distMod"),

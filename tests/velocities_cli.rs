@@ -150,11 +150,14 @@ fn every_format_matches_reference() {
         let ip = dir.path().join(input);
         let op = dir.path().join(output);
         write(&ip, &t);
+        // The fixture's rows in the observed convention (galaxy_pv.csv).
         let stdout = run_ok(&[
             "velocities",
             ip.to_str().unwrap(),
             "-o",
             op.to_str().unwrap(),
+            "--dl-convention",
+            "observed",
         ]);
         assert!(stdout.contains("rows ok          300"), "{stdout}");
         assert!(
@@ -234,7 +237,8 @@ fn provenance_in_every_format() {
         get("cosmology")
     );
     assert!(get("cmb_apex").contains("planck2018"));
-    assert_eq!(get("dl_convention"), "observed");
+    // The default convention: the complete one.
+    assert_eq!(get("dl_convention"), "full");
     assert!(get("command").contains("velocities"));
     assert!(get("date").ends_with('Z'));
 
@@ -248,7 +252,7 @@ fn provenance_in_every_format() {
     let kv = parquet::read_parquet_metadata(&pq).unwrap();
     assert!(kv
         .iter()
-        .any(|(k, v)| k == "flowsift.dl_convention" && v == "observed"));
+        .any(|(k, v)| k == "flowsift.dl_convention" && v == "full"));
     assert!(kv
         .iter()
         .any(|(k, v)| k == parquet::COLUMNS_KEY && v.contains("km/s")));
@@ -444,11 +448,14 @@ fn columns_found_by_ucd_and_unit() {
         let ip = dir.path().join(input);
         write(&ip, &table);
         let op = dir.path().join(output);
+        // The fixture's rows in the observed convention (galaxy_pv.csv).
         let stdout = run_ok(&[
             "velocities",
             ip.to_str().unwrap(),
             "-o",
             op.to_str().unwrap(),
+            "--dl-convention",
+            "observed",
         ]);
         assert!(
             stdout.contains("ra            ← RAJ2000 (UCD pos.eq.ra;meta.main)"),
@@ -614,7 +621,8 @@ fn demo_data_is_reproducible() {
         &spec,
         &cosmo,
         &Boost::new(&default_apex("cmb")).unwrap(),
-        DlConvention::Observed,
+        // The default convention, which `flowsift mock --scenario lantern` uses.
+        DlConvention::default(),
     )
     .unwrap();
     let root = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-data");

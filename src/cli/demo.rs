@@ -180,6 +180,23 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
         .zip(&injected)
         .filter(|(f, t)| **f && !**t)
         .count();
+    let status: Vec<Option<String>> = out
+        .frame
+        .column("status")?
+        .str()?
+        .iter()
+        .map(|s| s.map(str::to_string))
+        .collect();
+    let unsolved = status
+        .iter()
+        .zip(&injected)
+        .filter(|(s, t)| **t && s.as_deref() != Some("ok"))
+        .count();
+    if unsolved > 0 {
+        println!(
+            "  injected outliers without a cosmological solution (their distance is beyond any D_A): {unsolved} of {n_inj}"
+        );
+    }
     println!(
         "  injected outliers flagged: {found} of {n_inj}; clean objects flagged: {false_pos} of {}",
         injected.len() - n_inj

@@ -127,8 +127,8 @@ fn parse_apex(s: &str) -> Result<[f64; 3], String> {
 /// Convention flags.
 #[derive(Debug, Clone, Default, Args)]
 pub struct ConventionFlags {
-    /// Luminosity-distance convention: observed (D_L = (1+z_helio) D_M(z_cos), default),
-    /// cosmological (D_L = (1+z_cos) D_M(z_cos)) or full (also the source's own motion).
+    /// Luminosity-distance convention: full (D_L = (1+z_helio)(1+z_pec) D_M(z_cos), the
+    /// default), observed (D_L = (1+z_helio) D_M(z_cos)) or cosmological ((1+z_cos) D_M(z_cos)).
     #[arg(
         long = "dl-convention",
         value_enum,

@@ -42,12 +42,15 @@ const LN10: f64 = std::f64::consts::LN_10;
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema, Default)]
 #[serde(rename_all = "kebab-case")]
 pub enum DlConvention {
-    /// D_L = (1 + z_helio) D_M(z_cos).
-    #[default]
+    /// D_L = (1 + z_helio) D_M(z_cos): the observer's motion only (common in SN Ia work).
     Observed,
-    /// D_L = (1 + z_cos) D_M(z_cos).
+    /// D_L = (1 + z_cos) D_M(z_cos): no motion at all (older catalogues).
     Cosmological,
-    /// D_L = (1 + z_helio)(1 + z_cmb) D_M(z_cos)/(1 + z_cos).
+    /// D_L = (1 + z_helio)(1 + z_pec) D_M(z_cos) = (1 + z_helio)(1 + z_cmb) D_M(z_cos)/(1 + z_cos):
+    /// the flux of a moving source seen by a moving observer (the source's (1 + z_pec)² of
+    /// Davis et al. 2011 and Hui & Greene 2006 with the observer's factor; from memory). The
+    /// default.
+    #[default]
     Full,
 }
 

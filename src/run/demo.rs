@@ -68,11 +68,13 @@ pub fn demo_hubble_check(data: &Path, field: &Path, out: &Path) -> Result<Hubble
     let zh = float_column(&t, "z_helio")?;
     let pop = text_column(&t, "population")?;
     let bad = flags(&t, "true_outlier")?;
-    // Hubble residuals μ − μ_model(z) in the observed convention, D_L = (1 + z_helio) D_M(z).
-    let mu_model = |z: f64, z_helio: f64| {
+    // Hubble residuals μ − μ_model(z) in the complete convention the survey was made in,
+    // D_L = (1 + z_helio)(1 + z_pec) D_M(z) with 1 + z_pec = (1 + z_cmb)/(1 + z); at z = z_cmb
+    // this is (1 + z_helio) D_M(z_cmb).
+    let mu_model = |z: f64, z_helio: f64, z_cmb: f64| {
         cosmology
             .transverse_comoving_distance(z)
-            .map(|dm| 5.0 * ((1.0 + z_helio) * dm).log10() + 25.0)
+            .map(|dm| 5.0 * ((1.0 + z_helio) * (1.0 + z_cmb) / (1.0 + z) * dm).log10() + 25.0)
             .unwrap_or(f64::NAN)
     };
     let (mut before, mut after, mut within) = (vec![], vec![], 0usize);
@@ -82,8 +84,8 @@ pub fn demo_hubble_check(data: &Path, field: &Path, out: &Path) -> Result<Hubble
         }
         let v = [mu[i], zc[i], zm[i], zt[i], ze[i], zh[i]];
         if v.iter().all(|x| x.is_finite()) {
-            before.push(mu[i] - mu_model(zc[i], zh[i]));
-            after.push(mu[i] - mu_model(zm[i], zh[i]));
+            before.push(mu[i] - mu_model(zc[i], zh[i], zc[i]));
+            after.push(mu[i] - mu_model(zm[i], zh[i], zc[i]));
             if (zm[i] - zt[i]).abs() <= ze[i] {
                 within += 1;
             }

@@ -14,7 +14,7 @@ use super::{ResolvedCosmology, ResolvedFrames};
 #[derive(Debug, Clone, Copy, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct ConventionChoice {
-    /// Luminosity-distance convention (default `observed`).
+    /// Luminosity-distance convention (default `full`).
     pub dl_convention: Option<DlConvention>,
     /// Unit of input and output distances (default `mpc`).
     pub length_unit: Option<LengthUnit>,
@@ -59,7 +59,10 @@ pub fn cautions(
             "CMB frame from the '{}' apex ({:.2} km/s towards l = {}°, b = {}°).",
             frames.cmb_apex.name, frames.cmb_apex.speed_km_s, frames.cmb_apex.glon_deg, frames.cmb_apex.glat_deg
         ),
-        format!("Luminosity-distance convention: {} (see README, 'Conventions').", convention.name()),
+        match convention {
+            DlConvention::Full => "Luminosity-distance convention: full, D_L = (1 + z_helio)(1 + z_pec) D_M(z_cos) (see README, 'Conventions'); distances calibrated in the observed convention (D_L = (1 + z_helio) D_M(z_cos)) need --dl-convention observed, which gives |v_pec| smaller by a fraction ≈ z (600 km/s becomes 571 at z = 0.05).".to_string(),
+            other => format!("Luminosity-distance convention: {} (see README, 'Conventions'); the complete convention (full) would give |v_pec| larger by a fraction ≈ z.", other.name()),
+        },
     ];
     if frames.method == BoostMethod::LegacyAdditive {
         out.push("Legacy additive frame correction (cz + v cos θ) in use: it omits the (1 + z) factor, an error ≈ v z.".into());

@@ -38,7 +38,7 @@ pub const EXAMPLE_CONFIG: &str = r#"# flowsift run file. Every key is optional; 
 # galactic_rest = "schoenrich2010-eilers2019"
 
 [conventions]
-# dl_convention = "observed" # or "cosmological", "full"
+# dl_convention = "full"     # or "observed", "cosmological"
 # length_unit = "mpc"        # or "mpc-over-h"
 # sigma_star = 250.0         # km/s, added in quadrature to velocity errors
 
