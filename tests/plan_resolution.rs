@@ -435,6 +435,9 @@ fn config_check_runs_the_checks_of_a_run() {
 /// `groups --help` and `malmquist --help` describe their own commands.
 #[test]
 fn each_subcommand_has_its_own_help() {
+    // `velocities --help` lists the output columns from the one column schema.
+    let velocities = run_ok(&["velocities", "--help"]);
+    assert!(velocities.contains("Output columns") && velocities.contains("v_pec_mc_median"));
     let groups = run_ok(&["groups", "--help"]);
     assert!(groups.contains("Combine group members") && groups.contains("flowsift groups cat.csv"));
     assert!(!groups.contains("flowsift velocities survey.fits"));

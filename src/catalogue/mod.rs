@@ -4,6 +4,7 @@
 pub mod atomic;
 mod cfitsio;
 pub mod clock;
+pub mod column_schema;
 pub mod field_io;
 pub mod fits;
 pub mod provenance;

@@ -257,7 +257,8 @@ pub fn export(a: ExportArgs) -> anyhow::Result<()> {
 #[command(
     about = "Combine group members: error-weighted mean distance, mean redshift, group velocities",
     long_about = "Combine group members: error-weighted mean distance, mean redshift, group velocities.\n\nThe group table (one row per group) goes to -o; the members, each with `group_index`, go to --members-out. Groups are found by the group column (default group_id).",
-    after_help = "Examples:\n  flowsift groups cat.csv -o groups.fits --members-out members.fits\n  flowsift groups cat.fits -o groups.parquet --group-column GRP --central-column is_bcg"
+    after_help = "Examples:\n  flowsift groups cat.csv -o groups.fits --members-out members.fits\n  flowsift groups cat.fits -o groups.parquet --group-column GRP --central-column is_bcg",
+    after_long_help = "Examples:\n  flowsift groups cat.csv -o groups.fits --members-out members.fits\n  flowsift groups cat.fits -o groups.parquet --group-column GRP --central-column is_bcg"
 )]
 pub struct GroupsArgs {
     #[command(flatten)]
@@ -286,7 +287,8 @@ pub fn groups(a: GroupsArgs) -> anyhow::Result<()> {
 #[command(
     about = "Malmquist-bias correction of the distances, then velocities",
     long_about = "Malmquist-bias correction of the distances, then velocities.\n\nHomogeneous by default, E[r|d] = d exp(3.5 Δ²) (Lynden-Bell et al. 1988), or with a radial density profile (--malmquist-profile, a table with columns r and n). Adds malmquist_factor and distance_malmquist; the input distance column is kept.",
-    after_help = "Examples:\n  flowsift malmquist cat.csv -o cat_pv.fits\n  flowsift malmquist cat.csv -o cat_pv.fits --malmquist-profile density.csv"
+    after_help = "Examples:\n  flowsift malmquist cat.csv -o cat_pv.fits\n  flowsift malmquist cat.csv -o cat_pv.fits --malmquist-profile density.csv",
+    after_long_help = "Examples:\n  flowsift malmquist cat.csv -o cat_pv.fits\n  flowsift malmquist cat.csv -o cat_pv.fits --malmquist-profile density.csv"
 )]
 pub struct MalmquistArgs {
     #[command(flatten)]

@@ -21,10 +21,13 @@ use super::options::{
     SkyRedshiftFlags,
 };
 
+const EXAMPLES: &str = "Examples:\n  flowsift velocities survey.fits -o survey_pv.fits\n  flowsift velocities cat.csv -o out.parquet --z-column cz --z-unit cz --distance-column DM --distance-kind mu\n  flowsift velocities cat.csv -o out.csv --config run.toml --monte-carlo 1000 --seed 7";
+
 /// Derive peculiar velocities for every row of a catalogue.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  flowsift velocities survey.fits -o survey_pv.fits\n  flowsift velocities cat.csv -o out.parquet --z-column cz --z-unit cz --distance-column DM --distance-kind mu\n  flowsift velocities cat.csv -o out.csv --config run.toml --monte-carlo 1000 --seed 7"
+    after_help = EXAMPLES,
+    after_long_help = format!("{EXAMPLES}\n\n{}", flowsift::catalogue::column_schema::help_text())
 )]
 pub struct VelocitiesArgs {
     /// Input catalogue: .fits/.fit/.fits.gz, .csv, .tsv or .parquet.

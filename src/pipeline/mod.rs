@@ -21,24 +21,7 @@ pub use status::RowStatus;
 pub const CHUNK: usize = 8192;
 
 /// Names, units and UCDs of the derived columns, in output order. Names are stable.
-pub const OUTPUT_COLUMNS: &[(&str, &str, &str)] = &[
-    ("glon", "deg", "pos.galactic.lon"),
-    ("glat", "deg", "pos.galactic.lat"),
-    ("sgl", "deg", "pos.supergalactic.lon"),
-    ("sgb", "deg", "pos.supergalactic.lat"),
-    ("sgx", "LENGTH", "pos.cartesian.x"),
-    ("sgy", "LENGTH", "pos.cartesian.y"),
-    ("sgz", "LENGTH", "pos.cartesian.z"),
-    ("z_cmb", "", "src.redshift"),
-    ("z_cos", "", "src.redshift"),
-    ("z_cos_err", "", "stat.error;src.redshift"),
-    ("z_pec", "", "src.redshift"),
-    ("v_pec", "km/s", "phys.veloc"),
-    ("v_pec_err", "km/s", "stat.error;phys.veloc"),
-    ("eta", "", "pos.distance"),
-    ("eta_err", "", "stat.error;pos.distance"),
-    ("d_c", "LENGTH", "pos.distance"),
-];
+pub use crate::catalogue::column_schema::DERIVED as OUTPUT_COLUMNS;
 
 /// The derived values of one object in the order of [`OUTPUT_COLUMNS`].
 pub fn output_values(r: &ObjectResult) -> [f64; 16] {
@@ -81,7 +64,7 @@ impl Derived {
     pub fn get(&self, name: &str) -> Option<&[f64]> {
         OUTPUT_COLUMNS
             .iter()
-            .position(|c| c.0 == name)
+            .position(|c| c.name == name)
             .map(|i| self.columns[i].as_slice())
     }
 
@@ -193,21 +176,7 @@ pub fn assemble(
     let mut new_columns: Vec<(String, Vec<f64>, ColumnMeta)> = OUTPUT_COLUMNS
         .iter()
         .zip(derived.columns)
-        .map(|((name, unit, ucd), v)| {
-            let unit = if *unit == "LENGTH" {
-                length_label
-            } else {
-                unit
-            };
-            (
-                name.to_string(),
-                v,
-                ColumnMeta {
-                    unit: (!unit.is_empty()).then(|| unit.to_string()),
-                    ucd: Some(ucd.to_string()),
-                },
-            )
-        })
+        .map(|(spec, v)| (spec.name.to_string(), v, spec.meta(length_label)))
         .collect();
     new_columns.extend(extra);
     let mut renames = vec![];
@@ -253,10 +222,7 @@ pub fn assemble(
     cols.push(status.into_series().into_column());
     meta.insert(
         "status".into(),
-        ColumnMeta {
-            unit: None,
-            ucd: Some("meta.code.status".into()),
-        },
+        crate::catalogue::column_schema::STATUS.meta(length_label),
     );
     let frame = frame.hstack(&cols).map_err(|e| e.to_string())?;
     Ok((Table { frame, meta }, renames))
@@ -268,9 +234,9 @@ mod tests {
 
     #[test]
     fn error_column_indices_match_names() {
-        assert_eq!(OUTPUT_COLUMNS[col::Z_COS_ERR].0, "z_cos_err");
-        assert_eq!(OUTPUT_COLUMNS[col::V_PEC_ERR].0, "v_pec_err");
-        assert_eq!(OUTPUT_COLUMNS[col::ETA_ERR].0, "eta_err");
+        assert_eq!(OUTPUT_COLUMNS[col::Z_COS_ERR].name, "z_cos_err");
+        assert_eq!(OUTPUT_COLUMNS[col::V_PEC_ERR].name, "v_pec_err");
+        assert_eq!(OUTPUT_COLUMNS[col::ETA_ERR].name, "eta_err");
         assert_eq!(
             OUTPUT_COLUMNS.len(),
             output_values(&ObjectResult::default()).len()

@@ -8,7 +8,8 @@ use polars::prelude::*;
 use rayon::prelude::*;
 use serde::Serialize;
 
-use crate::catalogue::{read_table, ColumnMeta, ReadOptions, Table, WriteOptions};
+use crate::catalogue::column_schema::meta_of;
+use crate::catalogue::{read_table, ReadOptions, Table, WriteOptions};
 use crate::flow::line_of_sight::{correct_object, LineOfSight, SearchSettings};
 use crate::physics::constants::C_KM_S;
 use crate::physics::cosmology::LengthUnit;
@@ -162,54 +163,27 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, String> {
             .collect()
     };
     let new = [
-        ("v_model", col(|c| c.v_model), "km/s", "phys.veloc"),
-        ("z_cos_model", col(|c| c.z_cos_model), "", "src.redshift"),
-        (
-            "z_cos_model_err",
-            col(|c| c.z_cos_model_err),
-            "",
-            "stat.error;src.redshift",
-        ),
-        (
-            "mu_pec_err",
-            col(|c| c.mu_pec_err),
-            "mag",
-            "stat.error;phot.mag.distMod",
-        ),
-        (
-            "field_distance",
-            col(|c| c.r),
-            model_unit.label(),
-            "pos.distance",
-        ),
+        ("v_model", col(|c| c.v_model)),
+        ("z_cos_model", col(|c| c.z_cos_model)),
+        ("z_cos_model_err", col(|c| c.z_cos_model_err)),
+        ("mu_pec_err", col(|c| c.mu_pec_err)),
+        ("field_distance", col(|c| c.r)),
     ];
     let mut frame = table.frame.clone();
     let mut meta = table.meta.clone();
     let mut cols = vec![];
-    for (name, values, unit, ucd) in new {
+    for (name, values) in new {
         if frame.column(name).is_ok() {
             frame = frame.drop(name).map_err(|e| e.to_string())?;
         }
         cols.push(Column::new(name.into(), values));
-        meta.insert(
-            name.into(),
-            ColumnMeta {
-                unit: (!unit.is_empty()).then(|| unit.to_string()),
-                ucd: Some(ucd.into()),
-            },
-        );
+        meta.insert(name.into(), meta_of(name, model_unit.label()));
     }
     if frame.column("field_flag").is_ok() {
         frame = frame.drop("field_flag").map_err(|e| e.to_string())?;
     }
     cols.push(Column::new("field_flag".into(), flags.clone()));
-    meta.insert(
-        "field_flag".into(),
-        ColumnMeta {
-            unit: None,
-            ucd: Some("meta.code.qual".into()),
-        },
-    );
+    meta.insert("field_flag".into(), meta_of("field_flag", ""));
     let frame = frame.hstack(&cols).map_err(|e| e.to_string())?;
     let out = Table { frame, meta };
     let mut cautions = shared.cautions();

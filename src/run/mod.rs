@@ -17,6 +17,7 @@ use std::path::PathBuf;
 
 use serde::Serialize;
 
+use crate::catalogue::column_schema::meta_of;
 use crate::catalogue::delimited::SourceText;
 use crate::catalogue::record::RowCounts;
 use crate::catalogue::{
@@ -181,26 +182,12 @@ fn monte_carlo_columns(
 ) -> Vec<(String, Vec<f64>, ColumnMeta)> {
     let mc_progress = |k: usize| progress(Phase::MonteCarlo, k);
     let mc = montecarlo::run(ctx, input, status, plan.draws, plan.seed, &mc_progress);
-    let kms = |ucd: &str| ColumnMeta {
-        unit: Some("km/s".into()),
-        ucd: Some(ucd.into()),
-    };
+    let col = |name: &str, v: Vec<f64>| (name.to_string(), v, meta_of(name, ""));
     vec![
-        (
-            "v_pec_mc_median".into(),
-            mc.median,
-            kms("phys.veloc;stat.median"),
-        ),
-        ("v_pec_mc_p16".into(), mc.p16, kms("phys.veloc;stat.min")),
-        ("v_pec_mc_p84".into(), mc.p84, kms("phys.veloc;stat.max")),
-        (
-            "mc_failed_draws".into(),
-            mc.failed,
-            ColumnMeta {
-                unit: None,
-                ucd: Some("meta.number".into()),
-            },
-        ),
+        col("v_pec_mc_median", mc.median),
+        col("v_pec_mc_p16", mc.p16),
+        col("v_pec_mc_p84", mc.p84),
+        col("mc_failed_draws", mc.failed),
     ]
 }
 
@@ -264,22 +251,9 @@ pub fn run_velocities(
     if let Some(m) = &cfg.malmquist {
         let (f, corrected, note) = sample_stages::apply_malmquist(&mut input, m, &ctx)?;
         notes.push(note);
-        extra.push((
-            "malmquist_factor".into(),
-            f,
-            ColumnMeta {
-                unit: None,
-                ucd: Some("arith.factor".into()),
-            },
-        ));
-        extra.push((
-            "distance_malmquist".into(),
-            corrected,
-            ColumnMeta {
-                unit: None,
-                ucd: Some("pos.distance".into()),
-            },
-        ));
+        for (name, v) in [("malmquist_factor", f), ("distance_malmquist", corrected)] {
+            extra.push((name.into(), v, meta_of(name, "")));
+        }
     }
 
     let derive_progress = |k: usize| progress(Phase::Derive, k);

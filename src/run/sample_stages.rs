@@ -5,7 +5,8 @@ use std::path::Path;
 
 use polars::prelude::*;
 
-use crate::catalogue::{read_table, ColumnMeta, ReadOptions, Table};
+use crate::catalogue::column_schema::{meta_of, STAGE};
+use crate::catalogue::{read_table, ReadOptions, Table};
 use crate::flow::bulk_flow_report::{bulk_flow, BulkFlowReport};
 use crate::flow::groups::{combine, Groups, Members};
 use crate::flow::lcdm::lcdm_comparison;
@@ -23,32 +24,19 @@ use crate::pipeline::{output_values, Derived, InputColumns, RowStatus, OUTPUT_CO
 use crate::plan::ColumnPlan;
 use crate::settings::{BulkFlowChoice, GroupChoice, MalmquistChoice, MalmquistMethod};
 
-/// Columns a flowsift run adds besides [`OUTPUT_COLUMNS`] and `status`.
-pub const STAGE_COLUMNS: &[&str] = &[
-    "v_pec_mc_median",
-    "v_pec_mc_p16",
-    "v_pec_mc_p84",
-    "mc_failed_draws",
-    "malmquist_factor",
-    "distance_malmquist",
-    "outlier",
-    "outlier_reason",
-    "group_index",
-];
-
 /// If `table` is a flowsift output (it has `status` and every derived column), drop the
 /// derived columns so that they are recomputed rather than kept as `<name>_input`.
 /// Returns the dropped names.
 pub fn strip_earlier_run(table: Table) -> (Table, Vec<String>) {
     let has = |n: &str| table.frame.column(n).is_ok();
-    if !(has("status") && OUTPUT_COLUMNS.iter().all(|c| has(c.0))) {
+    if !(has("status") && OUTPUT_COLUMNS.iter().all(|c| has(c.name))) {
         return (table, vec![]);
     }
     let drop: Vec<String> = OUTPUT_COLUMNS
         .iter()
-        .map(|c| c.0)
+        .map(|c| c.name)
         .chain(["status"])
-        .chain(STAGE_COLUMNS.iter().copied())
+        .chain(STAGE.iter().map(|c| c.name))
         .filter(|n| has(n))
         .map(str::to_string)
         .collect();
@@ -285,7 +273,7 @@ pub fn group_table(
                     for name in ["z_cos_err", "v_pec_err", "eta_err"] {
                         let k = OUTPUT_COLUMNS
                             .iter()
-                            .position(|c| c.0 == name)
+                            .position(|c| c.name == name)
                             .expect("known");
                         cols[k][gi] = f64::NAN;
                     }
@@ -325,16 +313,9 @@ pub fn group_table(
     };
     let (mut table, _) =
         crate::pipeline::assemble(&base, group_derived, vec![], plan.length_unit.label())?;
-    let m = |unit: &str, ucd: &str| ColumnMeta {
-        unit: (!unit.is_empty()).then(|| unit.to_string()),
-        ucd: Some(ucd.to_string()),
-    };
-    table
-        .meta
-        .insert("group_id".into(), m("", "meta.id;src.groupMembership"));
-    table.meta.insert("n_members".into(), m("", "meta.number"));
-    table.meta.insert("ra".into(), m("deg", "pos.eq.ra"));
-    table.meta.insert("dec".into(), m("deg", "pos.eq.dec"));
+    for c in &crate::catalogue::column_schema::GROUP_TABLE {
+        table.meta.insert(c.name.into(), c.meta(""));
+    }
     Ok((table, g, malmquist_note))
 }
 
@@ -360,20 +341,9 @@ pub fn add_outliers(
             Column::new("outlier_reason".into(), reasons),
         ])
         .map_err(|e| e.to_string())?;
-    table.meta.insert(
-        "outlier".into(),
-        ColumnMeta {
-            unit: None,
-            ucd: Some("meta.code.qual".into()),
-        },
-    );
-    table.meta.insert(
-        "outlier_reason".into(),
-        ColumnMeta {
-            unit: None,
-            ucd: Some("meta.note".into()),
-        },
-    );
+    for name in ["outlier", "outlier_reason"] {
+        table.meta.insert(name.into(), meta_of(name, ""));
+    }
     Ok(result)
 }
 
@@ -421,12 +391,8 @@ pub fn add_group_index(table: &mut Table, groups: &Groups) -> Result<(), String>
         .frame
         .hstack(&[Column::new("group_index".into(), idx)])
         .map_err(|e| e.to_string())?;
-    table.meta.insert(
-        "group_index".into(),
-        ColumnMeta {
-            unit: None,
-            ucd: Some("meta.id.parent".into()),
-        },
-    );
+    table
+        .meta
+        .insert("group_index".into(), meta_of("group_index", ""));
     Ok(())
 }
