@@ -93,6 +93,7 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
             ),
             step: "velocities".into(),
         })
+        .map_err(flowsift::run::RunError::from)
         .and_then(|plan| run_velocities(&plan, &report));
         match summary {
             Ok(s) => {

@@ -34,7 +34,7 @@ impl Shared {
         hdu: Option<&str>,
         user: &RunConfig,
         allow_override: bool,
-    ) -> Result<Shared, String> {
+    ) -> Result<Shared, super::PlanError> {
         let previous = match input {
             Some(p) if p.exists() => {
                 crate::catalogue::read_record(p, hdu).map_err(|e| e.to_string())?
@@ -59,7 +59,8 @@ impl Shared {
         if !(sigma_star.is_finite() && sigma_star >= 0.0) {
             return Err(format!(
                 "sigma_star must be a non-negative number of km/s, got {sigma_star}"
-            ));
+            )
+            .into());
         }
         Ok(Shared {
             convention: config.conventions.dl_convention.unwrap_or_default(),

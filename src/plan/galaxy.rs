@@ -49,7 +49,7 @@ impl GalaxyPlan {
 }
 
 /// Check the numbers, every problem at once.
-pub fn plan_galaxy(order: GalaxyOrder) -> Result<GalaxyPlan, String> {
+pub fn plan_galaxy(order: GalaxyOrder) -> Result<GalaxyPlan, super::PlanError> {
     let mut problems = vec![];
     let ra = parse_ra_deg(&order.ra)
         .map_err(|e| problems.push(format!("--ra: {e}")))
@@ -101,7 +101,7 @@ pub fn plan_galaxy(order: GalaxyOrder) -> Result<GalaxyPlan, String> {
         }
     }
     if !problems.is_empty() {
-        return Err(problems.join("\n  "));
+        return Err(problems.join("\n  ").into());
     }
     Ok(GalaxyPlan {
         ra_deg: ra,

@@ -4,6 +4,8 @@
 //! record on purpose, and then the output says so.
 
 use crate::catalogue::RunRecord;
+
+use super::PlanError;
 use crate::settings::{CosmologyChoice, FrameChoice, RunConfig};
 
 /// The user's settings settled against the input's record.
@@ -23,7 +25,7 @@ pub fn settle(
     user: &RunConfig,
     allow_override: bool,
     input_name: &str,
-) -> Result<Settled, String> {
+) -> Result<Settled, PlanError> {
     let Some(rec) = record.and_then(RunRecord::binding) else {
         return Ok(Settled {
             config: user.clone(),
@@ -161,11 +163,11 @@ pub fn settle(
         });
     }
     if !allow_override {
-        return Err(format!(
-            "{input_name} is the output of `flowsift {}`, and these settings contradict the ones it was made with:\n  {}\nleave them out to use the recorded ones, or pass --override-input-settings to use yours (the output then records both)",
-            rec.step,
-            conflicts.join("\n  ")
-        ));
+        return Err(PlanError::ContradictsInput {
+            input: input_name.to_string(),
+            step: rec.step.clone(),
+            conflicts,
+        });
     }
     Ok(Settled {
         config,
@@ -195,5 +197,53 @@ fn describe_frame(f: &FrameChoice) -> String {
             r.method.name()
         ),
         Err(e) => format!("an invalid frame choice ({e})"),
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    fn planck_velocities() -> RunRecord {
+        let mut r = RunRecord::new("velocities", "", "");
+        r.settings.cosmology = CosmologyChoice {
+            preset: Some("planck2018".into()),
+            ..Default::default()
+        }
+        .filled()
+        .unwrap();
+        r
+    }
+
+    #[test]
+    fn a_contradiction_is_a_typed_error_and_an_override_is_recorded() {
+        let rec = planck_velocities();
+        let mut user = RunConfig::default();
+        user.cosmology.h0 = Some(70.0);
+        match settle(Some(&rec), &user, false, "in.fits") {
+            Err(PlanError::ContradictsInput {
+                step, conflicts, ..
+            }) => {
+                assert_eq!(step, "velocities");
+                assert!(conflicts[0].starts_with("cosmology"), "{conflicts:?}");
+            }
+            other => panic!("expected a contradiction, got {other:?}"),
+        }
+        let s = settle(Some(&rec), &user, true, "in.fits").unwrap();
+        assert_eq!(s.config.cosmology.h0, Some(70.0));
+        assert_eq!(s.config.cosmology.omega_m, rec.settings.cosmology.omega_m);
+        assert_eq!(s.overridden.len(), 1);
+    }
+
+    #[test]
+    fn agreeing_or_absent_settings_inherit_the_record() {
+        let rec = planck_velocities();
+        let mut user = RunConfig::default();
+        user.cosmology.preset = Some("planck2018".into());
+        let s = settle(Some(&rec), &user, false, "in.fits").unwrap();
+        assert!(s.overridden.is_empty());
+        let s = settle(Some(&rec), &RunConfig::default(), false, "in.fits").unwrap();
+        assert_eq!(s.config.cosmology, rec.settings.cosmology);
+        assert_eq!(s.inherited_from.as_deref(), Some("velocities"));
     }
 }

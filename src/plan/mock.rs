@@ -60,7 +60,7 @@ pub struct MockPlan {
 }
 
 /// Resolve the spec and check the files.
-pub fn plan_mock(order: MockOrder) -> Result<MockPlan, String> {
+pub fn plan_mock(order: MockOrder) -> Result<MockPlan, super::PlanError> {
     let mut spec = match &order.scenario {
         Some(name) => MockSpec::scenario(name)?,
         None => MockSpec::generic(),
@@ -70,7 +70,8 @@ pub fn plan_mock(order: MockOrder) -> Result<MockPlan, String> {
         if n > MAX_MOCK_OBJECTS {
             return Err(format!(
                 "--n {n} is more than the {MAX_MOCK_OBJECTS} objects flowsift makes in one mock"
-            ));
+            )
+            .into());
         }
         spec.n = n;
     }
@@ -146,7 +147,7 @@ pub struct FieldPlan {
 
 /// Resolve the scenario and defaults (48 cells of 18 length units; `lantern`: 26 of 36,
 /// reaching past z = 0.1), and check the output.
-pub fn plan_field(order: FieldOrder) -> Result<FieldPlan, String> {
+pub fn plan_field(order: FieldOrder) -> Result<FieldPlan, super::PlanError> {
     let axes = order.axes.unwrap_or(FieldAxes::Supergalactic);
     let unit = order.unit.unwrap_or(LengthUnit::Mpc);
     let mut bulk = order.bulk.unwrap_or([0.0; 3]);
@@ -159,15 +160,15 @@ pub fn plan_field(order: FieldOrder) -> Result<FieldPlan, String> {
             bulk = axes.from_galactic(&crate::physics::sky::SkyRotations::default(), g);
             (cells, spacing) = (26, 36.0);
         }
-        Some(other) => return Err(format!("unknown scenario '{other}'; known: lantern")),
+        Some(other) => return Err(format!("unknown scenario '{other}'; known: lantern").into()),
         None => {}
     }
     let cells = order.cells.unwrap_or(cells);
     let spacing = order.spacing.unwrap_or(spacing);
     if !((2..=MAX_FIELD_CELLS).contains(&cells) && spacing.is_finite() && spacing > 0.0) {
-        return Err(format!(
-            "--cells must be from 2 to {MAX_FIELD_CELLS} and --spacing positive"
-        ));
+        return Err(
+            format!("--cells must be from 2 to {MAX_FIELD_CELLS} and --spacing positive").into(),
+        );
     }
     let mut files = Files::new();
     match crate::catalogue::Format::from_path(&order.output) {

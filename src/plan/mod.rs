@@ -6,6 +6,7 @@
 pub mod columns;
 pub mod common;
 pub mod correct;
+pub mod error;
 pub mod galaxy;
 pub mod inherit;
 pub mod mock;
@@ -17,6 +18,7 @@ pub mod velocities;
 pub use columns::{ColumnPlan, Resolved};
 pub use common::Shared;
 pub use correct::{plan_correct, CorrectOrder, CorrectPlan};
+pub use error::PlanError;
 pub use mock::{plan_field, plan_mock, FieldOrder, FieldPlan, MockOrder, MockOverrides, MockPlan};
 pub use paths::Files;
 pub use run_file::{check_run_file, merge_run_file};

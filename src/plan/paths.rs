@@ -61,7 +61,7 @@ impl Files {
     }
 
     /// Check them all; every problem is reported at once.
-    pub fn check(&self, force: bool) -> Result<(), String> {
+    pub fn check(&self, force: bool) -> Result<(), super::PlanError> {
         let mut problems = vec![];
         for (role, p) in &self.reads {
             if !p.exists() {
@@ -121,7 +121,7 @@ impl Files {
         if problems.is_empty() {
             Ok(())
         } else {
-            Err(problems.join("\n  "))
+            Err(super::PlanError::Files { problems })
         }
     }
 }
@@ -144,7 +144,7 @@ mod tests {
         let mut f = Files::new();
         f.read("catalogue", &input)
             .write("output", &dir.path().join(".").join("in.csv"));
-        let e = f.check(true).unwrap_err();
+        let e = f.check(true).unwrap_err().to_string();
         assert!(
             e.contains("refusing to overwrite the input file (the catalogue"),
             "{e}"
@@ -154,7 +154,11 @@ mod tests {
         std::fs::hard_link(&input, &hard).unwrap();
         let mut f = Files::new();
         f.read("catalogue", &input).write("output", &hard);
-        assert!(f.check(true).unwrap_err().contains("the same file as"));
+        assert!(f
+            .check(true)
+            .unwrap_err()
+            .to_string()
+            .contains("the same file as"));
         #[cfg(unix)]
         {
             let soft = dir.path().join("soft.csv");
@@ -168,13 +172,13 @@ mod tests {
         f.read("catalogue", &input)
             .write("output", &out)
             .write("export", &out);
-        assert!(f.check(true).unwrap_err().contains("same file"));
+        assert!(f.check(true).unwrap_err().to_string().contains("same file"));
         // An existing output needs force; a missing input is named.
         std::fs::write(&out, "x").unwrap();
         let mut f = Files::new();
         f.read("catalogue", &dir.path().join("nope.csv"))
             .write("output", &out);
-        let e = f.check(false).unwrap_err();
+        let e = f.check(false).unwrap_err().to_string();
         assert!(e.contains("no such file") && e.contains("--force"), "{e}");
     }
 }

@@ -5,7 +5,10 @@ use std::path::Path;
 use crate::settings::RunConfig;
 
 /// The run file's settings with `flags` on top (no file: the flags alone).
-pub fn merge_run_file(run_file: Option<&Path>, flags: &RunConfig) -> Result<RunConfig, String> {
+pub fn merge_run_file(
+    run_file: Option<&Path>,
+    flags: &RunConfig,
+) -> Result<RunConfig, super::PlanError> {
     let file = match run_file {
         Some(p) => {
             let text = std::fs::read_to_string(p).map_err(|e| format!("{}: {e}", p.display()))?;
@@ -18,9 +21,9 @@ pub fn merge_run_file(run_file: Option<&Path>, flags: &RunConfig) -> Result<RunC
 
 /// Check a run file as a run would, without data: it parses, its cosmology and frames
 /// resolve, its counts and stage settings are in range.
-pub fn check_run_file(path: &Path) -> Result<RunConfig, String> {
+pub fn check_run_file(path: &Path) -> Result<RunConfig, super::PlanError> {
     let cfg = merge_run_file(Some(path), &RunConfig::default())?;
-    let at = |e: String| format!("{}: {e}", path.display());
+    let at = |e: super::PlanError| format!("{}: {e}", path.display());
     super::common::Shared::resolve(None, None, &cfg, false).map_err(at)?;
     super::velocities::check_settings(&cfg).map_err(at)?;
     Ok(cfg)

@@ -48,7 +48,7 @@ impl StagePlan {
 }
 
 /// Check the order and resolve it.
-pub fn plan_stage(order: StageOrder) -> Result<StagePlan, String> {
+pub fn plan_stage(order: StageOrder) -> Result<StagePlan, super::PlanError> {
     let mut files = Files::new();
     files.read("catalogue", &order.input);
     for (role, p) in &order.other_inputs {

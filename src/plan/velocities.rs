@@ -107,12 +107,12 @@ pub(crate) fn table_output(files: &mut Files, role: &str, path: &Path) {
 }
 
 /// The output's format, from its name.
-pub(crate) fn format_of_output(path: &Path) -> Result<Format, String> {
+pub(crate) fn format_of_output(path: &Path) -> Result<Format, super::PlanError> {
     Format::from_path(path).map_err(|_| {
-        format!(
+        super::PlanError::Settings(format!(
             "{}: unknown output type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet",
             path.display()
-        )
+        ))
     })
 }
 
@@ -121,7 +121,7 @@ pub(crate) fn format_of_output(path: &Path) -> Result<Format, String> {
 /// `config --check` runs these too, so a run file it calls valid is one a run accepts.
 pub fn check_settings(
     cfg: &RunConfig,
-) -> Result<(usize, Option<OutlierSettings>, Option<PathBuf>), String> {
+) -> Result<(usize, Option<OutlierSettings>, Option<PathBuf>), super::PlanError> {
     let draws = cfg.errors.monte_carlo.unwrap_or(0);
     if draws == 1 {
         return Err("monte_carlo needs at least 2 draws per object to give percentiles".into());
@@ -129,7 +129,7 @@ pub fn check_settings(
     if draws > MAX_MONTE_CARLO_DRAWS {
         return Err(format!(
             "monte_carlo = {draws} draws per object is more than the {MAX_MONTE_CARLO_DRAWS} flowsift accepts"
-        ));
+        ).into());
     }
     let outliers = cfg
         .outliers
@@ -139,9 +139,7 @@ pub fn check_settings(
     if let Some(b) = &cfg.bulk_flow {
         if let Some(s) = b.sigma_star {
             if !(s.is_finite() && s >= 0.0) {
-                return Err(format!(
-                    "bulk flow: sigma_star must be non-negative, got {s}"
-                ));
+                return Err(format!("bulk flow: sigma_star must be non-negative, got {s}").into());
             }
         }
     }
@@ -161,7 +159,7 @@ pub fn check_settings(
 }
 
 /// Check the order and resolve it into a plan.
-pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, String> {
+pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, super::PlanError> {
     let user = merge_run_file(order.run_file.as_deref(), &order.flags)?;
     let output_format = format_of_output(&order.output)?;
     let shared = Shared::resolve(

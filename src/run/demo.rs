@@ -38,7 +38,11 @@ fn rms(v: &[f64]) -> f64 {
 
 /// Correct `data` with the velocity grid `field` (σ_v = 250 km/s), write `out`, and compare
 /// with the truth columns.
-pub fn demo_hubble_check(data: &Path, field: &Path, out: &Path) -> Result<HubbleCheck, String> {
+pub fn demo_hubble_check(
+    data: &Path,
+    field: &Path,
+    out: &Path,
+) -> Result<HubbleCheck, super::RunError> {
     let plan = plan_correct(CorrectOrder {
         input: data.to_path_buf(),
         output: out.to_path_buf(),

@@ -7,20 +7,21 @@ use super::cosmology_reaching;
 
 /// The distances at each redshift (D_C, D_M, D_L, D_A scaled to the length unit; μ from D_L
 /// in Mpc), or the first redshift that has none.
-pub fn distance_table(zs: &[f64], shared: &Shared) -> Result<Vec<Distances>, String> {
+pub fn distance_table(zs: &[f64], shared: &Shared) -> Result<Vec<Distances>, super::RunError> {
     for &z in zs {
         if !z.is_finite() {
-            return Err(format!("--z: {z} is not a finite redshift"));
+            return Err(format!("--z: {z} is not a finite redshift").into());
         }
         if z <= -1.0 {
-            return Err(format!(
-                "--z: redshift {z} is not above -1 (1 + z must be positive)"
-            ));
+            return Err(
+                format!("--z: redshift {z} is not above -1 (1 + z must be positive)").into(),
+            );
         }
         if z < 0.0 {
             return Err(format!(
                 "--z: negative redshift {z} has no distance in an expanding model"
-            ));
+            )
+            .into());
         }
     }
     let params = shared.cosmology.params;
@@ -43,7 +44,7 @@ pub fn distance_table(zs: &[f64], shared: &Shared) -> Result<Vec<Distances>, Str
                     d_a: d.d_a * k,
                     ..d
                 })
-                .map_err(|e| format!("z = {z}: {e}"))
+                .map_err(|e| format!("z = {z}: {e}").into())
         })
         .collect()
 }

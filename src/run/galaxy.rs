@@ -20,7 +20,7 @@ pub struct GalaxyReport {
 }
 
 /// Derive the object's velocity.
-pub fn run_galaxy(plan: &GalaxyPlan) -> Result<GalaxyReport, String> {
+pub fn run_galaxy(plan: &GalaxyPlan) -> Result<GalaxyReport, super::RunError> {
     let shared = &plan.shared;
     // One object costs nothing: reach well past its redshift, since its distance may imply a
     // cosmological redshift far from the observed one.

@@ -13,7 +13,7 @@ use super::cosmology_reaching;
 use super::model::build_model;
 
 /// Make and write the mock; returns the number of objects.
-pub fn run_mock(plan: &MockPlan) -> Result<usize, String> {
+pub fn run_mock(plan: &MockPlan) -> Result<usize, super::RunError> {
     let params = plan.shared.cosmology.params;
     let cosmology = cosmology_reaching(params, plan.spec.z_max)?;
     let model = build_model(&plan.model, &params)?.map(|m| m.0);
@@ -73,7 +73,7 @@ pub fn run_mock(plan: &MockPlan) -> Result<usize, String> {
 }
 
 /// Sample the analytic model onto the grid and write it; returns the half-width of the grid.
-pub fn run_field(plan: &FieldPlan) -> Result<f64, String> {
+pub fn run_field(plan: &FieldPlan) -> Result<f64, super::RunError> {
     let params = plan.shared.cosmology.params;
     let model = AnalyticField {
         bulk: plan.bulk,

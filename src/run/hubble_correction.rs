@@ -35,7 +35,7 @@ pub struct CorrectSummary {
 }
 
 /// Run `correct` as `plan` says.
-pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, String> {
+pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError> {
     let shared = &plan.shared;
     let resolved = &shared.cosmology;
     let frames = &shared.frames;

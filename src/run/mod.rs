@@ -6,6 +6,7 @@
 
 pub mod demo;
 pub mod distances;
+pub mod error;
 pub mod galaxy;
 pub mod generate;
 pub mod hubble_correction;
@@ -30,6 +31,7 @@ use crate::physics::sky::SkyRotations;
 use crate::pipeline::{self, montecarlo, Derived, InputColumns, RowStatus};
 use crate::plan::columns::resolve_columns;
 use crate::plan::{ColumnPlan, VelocityPlan};
+pub use error::RunError;
 
 /// Which part of the run a progress report is about.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -68,14 +70,14 @@ pub struct RunSummary {
 }
 
 /// Read a catalogue as a plan names it (for callers that want to inspect it first).
-pub fn read_input(plan: &VelocityPlan) -> Result<Table, String> {
+pub fn read_input(plan: &VelocityPlan) -> Result<Table, RunError> {
     read_table(
         &plan.input,
         &ReadOptions {
             hdu: plan.config().input.hdu.clone(),
         },
     )
-    .map_err(|e| e.to_string())
+    .map_err(Into::into)
 }
 
 /// The one rule for how far a distance table must reach: 5% in 1 + z beyond the largest
@@ -83,7 +85,7 @@ pub fn read_input(plan: &VelocityPlan) -> Result<Table, String> {
 pub fn cosmology_reaching(
     params: crate::physics::cosmology::CosmologyParams,
     z_top: f64,
-) -> Result<Cosmology, String> {
+) -> Result<Cosmology, RunError> {
     let z_needed = ((1.0 + z_top.max(0.0)) * 1.05 - 1.0).max(0.1);
     let cosmology = if z_needed > crate::physics::cosmology::DEFAULT_Z_MAX {
         Cosmology::with_z_max(params, z_needed * 1.5).map_err(|e| e.to_string())?
@@ -118,7 +120,9 @@ pub(crate) fn object_context<'a>(
 
 /// Step 1: the catalogue, with its text when a delimited output can copy its columns, and
 /// without the derived columns of an earlier run (they are recomputed).
-fn read_catalogue(plan: &VelocityPlan) -> Result<(Table, Option<SourceText>, Vec<String>), String> {
+fn read_catalogue(
+    plan: &VelocityPlan,
+) -> Result<(Table, Option<SourceText>, Vec<String>), RunError> {
     let options = ReadOptions {
         hdu: plan.config().input.hdu.clone(),
     };
@@ -228,7 +232,7 @@ fn velocity_record(
 pub fn run_velocities(
     plan: &VelocityPlan,
     progress: &(dyn Fn(Phase, usize) + Sync),
-) -> Result<RunSummary, String> {
+) -> Result<RunSummary, RunError> {
     let cfg = plan.config();
     let shared = &plan.shared;
     let where_ = |e: String| format!("{}: {e}", plan.input.display());

@@ -12,18 +12,18 @@ use crate::plan::StagePlan;
 use super::cosmology_reaching;
 use super::sample_stages::{add_outliers, bulk_flow_of_table};
 
-fn read_input(plan: &StagePlan) -> Result<Table, String> {
+fn read_input(plan: &StagePlan) -> Result<Table, super::RunError> {
     read_table(
         &plan.input,
         &ReadOptions {
             hdu: plan.config().input.hdu.clone(),
         },
     )
-    .map_err(|e| e.to_string())
+    .map_err(Into::into)
 }
 
 /// A distance table reaching past every z_cmb of the table.
-fn cosmology_for(plan: &StagePlan, table: &Table) -> Result<Cosmology, String> {
+fn cosmology_for(plan: &StagePlan, table: &Table) -> Result<Cosmology, super::RunError> {
     let z_top = crate::flow::sample::float_column(table, "z_cmb")
         .unwrap_or_default()
         .into_iter()
@@ -50,7 +50,7 @@ fn stage_record(plan: &StagePlan, rows: usize) -> RunRecord {
     r
 }
 
-fn write(plan: &StagePlan, table: &Table, record: &RunRecord) -> Result<(), String> {
+fn write(plan: &StagePlan, table: &Table, record: &RunRecord) -> Result<(), super::RunError> {
     let out = plan
         .output
         .as_ref()
@@ -64,11 +64,13 @@ fn write(plan: &StagePlan, table: &Table, record: &RunRecord) -> Result<(), Stri
             protected: vec![plan.input.clone()],
         },
     )
-    .map_err(|e| e.to_string())
+    .map_err(Into::into)
 }
 
 /// `outliers`: the input plus `outlier` and `outlier_reason`.
-pub fn run_outliers(plan: &StagePlan) -> Result<(OutlierResult, usize, Vec<String>), String> {
+pub fn run_outliers(
+    plan: &StagePlan,
+) -> Result<(OutlierResult, usize, Vec<String>), super::RunError> {
     let choice = plan.config().outliers.clone().unwrap_or_default();
     let settings = OutlierSettings::from_choice(&choice)?;
     let mut table = read_input(plan)?;
@@ -83,7 +85,7 @@ pub fn run_outliers(plan: &StagePlan) -> Result<(OutlierResult, usize, Vec<Strin
 
 /// `bulkflow`: the ML bulk flow and its ΛCDM expectation; written as JSON (with the record)
 /// when the plan names an output.
-pub fn run_bulkflow(plan: &StagePlan) -> Result<(BulkFlowReport, Vec<String>), String> {
+pub fn run_bulkflow(plan: &StagePlan) -> Result<(BulkFlowReport, Vec<String>), super::RunError> {
     let choice = plan.config().bulk_flow.clone().unwrap_or_default();
     let table = read_input(plan)?;
     let cosmology = cosmology_for(plan, &table)?;
@@ -106,7 +108,7 @@ pub fn run_bulkflow(plan: &StagePlan) -> Result<(BulkFlowReport, Vec<String>), S
 }
 
 /// `export`: the flow-sample table.
-pub fn run_export(plan: &StagePlan) -> Result<(ExportSummary, Vec<String>), String> {
+pub fn run_export(plan: &StagePlan) -> Result<(ExportSummary, Vec<String>), super::RunError> {
     let choice = plan.config().export.clone().unwrap_or_default();
     let table = read_input(plan)?;
     // The input's length unit: its record's, else the unit of its d_c column.

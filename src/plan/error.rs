@@ -1,0 +1,40 @@
+//! What can stop a plan before any work: typed, so that callers (the command line, the
+//! Python interface) can tell a contradiction of the input's record from a file problem or
+//! a setting out of range; each prints as one clear message.
+
+use thiserror::Error;
+
+use crate::catalogue::CatalogueError;
+
+#[derive(Debug, Error)]
+pub enum PlanError {
+    /// Flags or run-file keys that contradict the settings recorded with a flowsift input.
+    #[error("{input} is the output of `flowsift {step}`, and these settings contradict the ones it was made with:\n  {}\nleave them out to use the recorded ones, or pass --override-input-settings to use yours (the output then records both)", conflicts.join("\n  "))]
+    ContradictsInput {
+        input: String,
+        step: String,
+        conflicts: Vec<String>,
+    },
+    /// Files that cannot be read or written as asked (missing, an output that is an input,
+    /// an existing output without --force).
+    #[error("{}", problems.join("\n  "))]
+    Files { problems: Vec<String> },
+    /// The input's record (or another file the plan reads) could not be read.
+    #[error(transparent)]
+    Catalogue(#[from] CatalogueError),
+    /// A setting out of range or inconsistent (cosmology, frames, counts, stage settings).
+    #[error("{0}")]
+    Settings(String),
+}
+
+impl From<String> for PlanError {
+    fn from(message: String) -> Self {
+        PlanError::Settings(message)
+    }
+}
+
+impl From<&str> for PlanError {
+    fn from(message: &str) -> Self {
+        PlanError::Settings(message.to_string())
+    }
+}
