@@ -374,3 +374,27 @@ fn absurd_moduli_have_no_cosmological_solution() {
         ["no_cosmological_solution", "no_cosmological_solution", "ok"]
     );
 }
+
+/// Counts from the user have stated limits, checked before any work (no abort on a huge
+/// allocation): Monte Carlo draws per object at most 10⁶.
+#[test]
+fn huge_monte_carlo_counts_are_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let data =
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data/lantern_survey.csv");
+    for n in ["100000000000", "18446744073709551615"] {
+        let out = flowsift()
+            .args([
+                "velocities",
+                data.to_str().unwrap(),
+                "-o",
+                dir.path().join("o.csv").to_str().unwrap(),
+                "--monte-carlo",
+                n,
+            ])
+            .assert()
+            .failure();
+        let err = String::from_utf8_lossy(&out.get_output().stderr).to_string();
+        assert!(err.contains("more than the 1000000"), "{err}");
+    }
+}

@@ -799,3 +799,26 @@ fn raw_decoding_agrees_with_cfitsio_conversion() {
             .collect::<Vec<_>>()
     );
 }
+
+/// A header whose NAXIS2 is absurd (2³¹, 10¹², 2⁶³ − 1 rows) is refused with a message before
+/// anything is allocated for it — it does not abort or panic (FITS standard 4.0 §7.3: the
+/// data of a binary table are NAXIS1 × NAXIS2 bytes, which the file must hold).
+#[test]
+fn absurd_row_counts_are_refused_not_allocated() {
+    let dir = tmp();
+    let good = dir.path().join("good.fits");
+    write_fits(&good, &sample_table(), &Provenance::default()).unwrap();
+    let bytes = std::fs::read(&good).unwrap();
+    let at = bytes
+        .windows(9)
+        .position(|w| w == b"NAXIS2  =")
+        .expect("a NAXIS2 card");
+    for rows in ["2147483648", "1000000000000", "9223372036854775807"] {
+        let mut damaged = bytes.clone();
+        damaged[at + 10..at + 30].copy_from_slice(format!("{rows:>20}").as_bytes());
+        let path = dir.path().join(format!("bad{rows}.fits"));
+        std::fs::write(&path, &damaged).unwrap();
+        let e = read_fits(&path, None).unwrap_err().to_string();
+        assert!(e.contains("NAXIS2") && e.contains("damaged"), "{e}");
+    }
+}

@@ -120,7 +120,15 @@ pub fn read_table(path: &Path, options: &ReadOptions) -> Result<Table, Catalogue
         Format::Fits => fits::read_fits(path, options.hdu.as_deref()),
         Format::Csv => delimited::read_delimited(path, b','),
         Format::Tsv => delimited::read_delimited(path, b'\t'),
-        Format::Parquet => parquet::read_parquet(path),
+        // The Parquet reader can panic on a corrupt file: that becomes an error naming it.
+        Format::Parquet => {
+            std::panic::catch_unwind(|| parquet::read_parquet(path)).unwrap_or_else(|_| {
+                Err(CatalogueError::read(
+                    path,
+                    "unreadable Parquet file (its reader failed on the file's contents)",
+                ))
+            })
+        }
     }
 }
 

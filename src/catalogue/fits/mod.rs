@@ -130,7 +130,38 @@ pub fn read_fits(path: &Path, hdu: Option<&str>) -> Result<Table, CatalogueError
     let err = |m: String| CatalogueError::read(path, m);
     let file = FitsHandle::open(path).map_err(err)?;
     let chosen = select_hdu(&file, hdu).map_err(err)?;
+    check_size_against_file(&file, path).map_err(err)?;
     read_table_hdu(&file, &chosen).map_err(err)
+}
+
+/// The table's size from its header (NAXIS1 bytes per row × NAXIS2 rows) must fit in the
+/// file before anything is allocated for it: a damaged header must not ask for terabytes.
+/// A gzip-compressed file may hold up to about 1032 times its size (deflate's largest ratio;
+/// from memory), so it is allowed 1100 times.
+fn check_size_against_file(file: &FitsHandle, path: &Path) -> Result<(), String> {
+    let card = |k: &str| -> Result<u64, String> {
+        file.key_text(k)
+            .map_err(|s| format!("cannot read keyword {k}: {}", status_text(s)))?
+            .and_then(|v| v.trim().parse::<u64>().ok())
+            .ok_or_else(|| format!("the table header has no valid {k}: the header is damaged"))
+    };
+    let (row_bytes, rows) = (card("NAXIS1")?, card("NAXIS2")?);
+    let len = std::fs::metadata(path).map(|m| m.len()).unwrap_or(0);
+    let compressed = path
+        .file_name()
+        .map(|n| n.to_string_lossy().to_ascii_lowercase().ends_with(".gz"))
+        .unwrap_or(false);
+    let limit = if compressed {
+        len.saturating_mul(1100)
+    } else {
+        len
+    };
+    match row_bytes.checked_mul(rows) {
+        Some(b) if b <= limit => Ok(()),
+        _ => Err(format!(
+            "the table header says {rows} rows of {row_bytes} bytes, more than the file's {len} bytes can hold: the header is damaged (NAXIS1/NAXIS2)"
+        )),
+    }
 }
 
 /// Read the provenance entries that [`write_fits`] stored (`PRVKnnn`/`PRVVnnn` cards) from the
