@@ -8,6 +8,47 @@ fn flowsift() -> Command {
     Command::cargo_bin("flowsift").unwrap()
 }
 
+/// Columns `z` and `column` of the flat ΛCDM (H0 = 70, Ω_m = 0.3) rows of the astropy
+/// fixture `tests/reference/distances.csv` (astropy 8.0.2, `make_fixtures.py`).
+fn flat_lcdm_fixture(column: &str) -> Vec<(f64, f64)> {
+    let text = std::fs::read_to_string(
+        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/distances.csv"),
+    )
+    .unwrap();
+    let header: Vec<&str> = text
+        .lines()
+        .find(|l| l.starts_with("model,"))
+        .unwrap()
+        .split(',')
+        .collect();
+    let col = |n: &str| header.iter().position(|h| *h == n).unwrap();
+    text.lines()
+        .filter(|l| l.starts_with("flat_lcdm,70,0.29999999999999999,"))
+        .map(|l| {
+            let f: Vec<&str> = l.split(',').collect();
+            (
+                f[col("z")].parse().unwrap(),
+                f[col(column)].parse().unwrap(),
+            )
+        })
+        .collect()
+}
+
+/// The heliocentric redshift of an object at rest in the CMB frame at redshift z, in the
+/// direction (ra, dec), by the exact inverse boost with the Planck 2018 dipole.
+fn heliocentric_at_rest(z: f64, ra: f64, dec: f64) -> f64 {
+    use flowsift::physics::redshift::{Cmb, Redshift};
+    use flowsift::physics::restframe::{default_apex, Boost};
+    use flowsift::physics::sky::{Direction, Icrs, SkyRotations};
+    let boost = Boost::<Cmb>::new(&default_apex("cmb")).unwrap();
+    let gal = SkyRotations::default()
+        .icrs_to_galactic
+        .apply(&Direction::<Icrs>::from_lon_lat_deg(ra, dec).unwrap());
+    boost
+        .to_heliocentric(Redshift::<Cmb>::new(z).unwrap(), &gal)
+        .value()
+}
+
 fn f64s(path: &std::path::Path, name: &str) -> Vec<f64> {
     let t = read_table(path, &ReadOptions::default()).unwrap();
     t.frame
@@ -114,43 +155,17 @@ fn monte_carlo_draws_the_intrinsic_scatter() {
 /// and full conventions and (1 + z_cos) D_M(z_cos) in the cosmological one.
 #[test]
 fn galaxies_at_rest_beyond_the_angular_diameter_maximum() {
-    use flowsift::physics::redshift::{Cmb, Redshift};
-    use flowsift::physics::restframe::{default_apex, Boost};
-    use flowsift::physics::sky::{Direction, Icrs, SkyRotations};
-    let text = std::fs::read_to_string(
-        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/distances.csv"),
-    )
-    .unwrap();
-    let header: Vec<&str> = text
-        .lines()
-        .find(|l| l.starts_with("model,"))
-        .unwrap()
-        .split(',')
-        .collect();
-    let col = |n: &str| header.iter().position(|h| *h == n).unwrap();
-    let rows: Vec<(f64, f64)> = text
-        .lines()
-        .filter(|l| l.starts_with("flat_lcdm,70,0.29999999999999999,"))
-        .map(|l| {
-            let f: Vec<&str> = l.split(',').collect();
-            (f[col("z")].parse().unwrap(), f[col("d_m")].parse().unwrap())
-        })
-        .filter(|(z, _): &(f64, f64)| *z > 1.7)
+    let rows: Vec<(f64, f64)> = flat_lcdm_fixture("d_m")
+        .into_iter()
+        .filter(|(z, _)| *z > 1.7)
         .collect();
     assert!(rows.len() >= 3, "fixture rows at z > 1.7: {rows:?}");
-    let boost = Boost::<Cmb>::new(&default_apex("cmb")).unwrap();
-    let rot = SkyRotations::default();
     let (ra, dec) = (150.0, 20.0);
-    let gal = rot
-        .icrs_to_galactic
-        .apply(&Direction::<Icrs>::from_lon_lat_deg(ra, dec).unwrap());
     let dir = tempfile::tempdir().unwrap();
     for convention in ["observed", "cosmological", "full"] {
         let mut csv = String::from("ra,dec,z_helio,mu\n");
         for (z, d_m) in &rows {
-            let z_helio = boost
-                .to_heliocentric(Redshift::<Cmb>::new(*z).unwrap(), &gal)
-                .value();
+            let z_helio = heliocentric_at_rest(*z, ra, dec);
             let d_l = match convention {
                 "cosmological" => (1.0 + z) * d_m,
                 _ => (1.0 + z_helio) * d_m,
@@ -192,42 +207,16 @@ fn galaxies_at_rest_beyond_the_angular_diameter_maximum() {
 /// D_A = D_M(z)/(1 + z_helio) = d_a (1 + z)/(1 + z_helio).
 #[test]
 fn angular_diameter_distances_at_rest() {
-    use flowsift::physics::redshift::{Cmb, Redshift};
-    use flowsift::physics::restframe::{default_apex, Boost};
-    use flowsift::physics::sky::{Direction, Icrs, SkyRotations};
-    let text = std::fs::read_to_string(
-        std::path::Path::new(env!("CARGO_MANIFEST_DIR")).join("tests/reference/distances.csv"),
-    )
-    .unwrap();
-    let header: Vec<&str> = text
-        .lines()
-        .find(|l| l.starts_with("model,"))
-        .unwrap()
-        .split(',')
+    let rows: Vec<(f64, f64)> = flat_lcdm_fixture("d_a")
+        .into_iter()
+        .filter(|(z, _)| *z >= 0.01)
         .collect();
-    let col = |n: &str| header.iter().position(|h| *h == n).unwrap();
-    let rows: Vec<(f64, f64)> = text
-        .lines()
-        .filter(|l| l.starts_with("flat_lcdm,70,0.29999999999999999,"))
-        .map(|l| {
-            let f: Vec<&str> = l.split(',').collect();
-            (f[col("z")].parse().unwrap(), f[col("d_a")].parse().unwrap())
-        })
-        .filter(|(z, _): &(f64, f64)| *z >= 0.01)
-        .collect();
-    let boost = Boost::<Cmb>::new(&default_apex("cmb")).unwrap();
-    let rot = SkyRotations::default();
     let (ra, dec) = (40.0, -35.0);
-    let gal = rot
-        .icrs_to_galactic
-        .apply(&Direction::<Icrs>::from_lon_lat_deg(ra, dec).unwrap());
     let dir = tempfile::tempdir().unwrap();
     for convention in ["cosmological", "observed", "full"] {
         let mut csv = String::from("ra,dec,z_helio,da\n");
         for (z, d_a) in &rows {
-            let z_helio = boost
-                .to_heliocentric(Redshift::<Cmb>::new(*z).unwrap(), &gal)
-                .value();
+            let z_helio = heliocentric_at_rest(*z, ra, dec);
             let da = match convention {
                 "cosmological" => *d_a,
                 _ => d_a * (1.0 + z) / (1.0 + z_helio),
