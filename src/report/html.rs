@@ -577,7 +577,7 @@ fn bulkflow_section(h: &mut String, bulk: Option<&Value>) {
 /// A link target for `file` as seen from the report at `out`: relative when the file is in the
 /// report's folder or below it, else the absolute path.
 fn href(file: &Path, out: &Path) -> String {
-    let base = super::folder_of(out);
+    let base = crate::catalogue::atomic::folder_of(out);
     let abs = |p: &Path| std::fs::canonicalize(p).unwrap_or_else(|_| p.to_path_buf());
     let (f, b) = (abs(file), abs(base));
     let target = match f.strip_prefix(&b) {

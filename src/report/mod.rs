@@ -211,24 +211,6 @@ pub fn render_all(
     Ok(written)
 }
 
-/// The folder a file is in ("." for a bare name).
-pub(crate) fn folder_of(path: &Path) -> &Path {
-    path.parent()
-        .filter(|p| !p.as_os_str().is_empty())
-        .unwrap_or(Path::new("."))
-}
-
-/// Temporary files are private; finished figures and reports are readable like other outputs.
-pub(crate) fn set_readable(path: &Path) {
-    #[cfg(unix)]
-    {
-        use std::os::unix::fs::PermissionsExt;
-        let _ = std::fs::set_permissions(path, std::fs::Permissions::from_mode(0o644));
-    }
-    #[cfg(not(unix))]
-    let _ = path;
-}
-
 /// Write `bytes` to `path` atomically (the catalogue layer's one writer).
 pub(crate) fn atomic_write(path: &Path, bytes: &[u8]) -> Result<(), String> {
     crate::catalogue::atomic::write_bytes(path, bytes).map_err(|e| e.to_string())

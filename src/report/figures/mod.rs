@@ -62,24 +62,14 @@ pub(crate) fn write_figure(figure: Figure, ctx: &Context<'_>, path: &Path) -> Re
             }
             super::atomic_write(path, text.as_bytes())
         }
-        "png" => {
-            let dir = super::folder_of(path);
-            let tmp = tempfile::Builder::new()
-                .prefix(".flowsift-partial-")
-                .suffix(".png")
-                .tempfile_in(dir)
-                .map_err(|e| format!("cannot create a temporary file: {e}"))?
-                .into_temp_path();
-            {
-                let root = BitMapBackend::new(&tmp, size).into_drawing_area();
-                draw(figure, ctx, &root)?;
-                root.present().map_err(de)?;
-            }
-            super::set_readable(&tmp);
-            tmp.persist(path)
-                .map_err(|e| format!("cannot move the finished file into place: {e}"))?;
-            Ok(())
-        }
+        // The PNG encoder writes its file by name: the one atomic writer gives it a fresh
+        // temporary path with the destination's extension.
+        "png" => crate::catalogue::atomic::write_via_path(path, |tmp| {
+            let root = BitMapBackend::new(tmp, size).into_drawing_area();
+            draw(figure, ctx, &root)?;
+            root.present().map_err(de)
+        })
+        .map_err(|e| e.to_string()),
         other => Err(format!("unknown image type .{other} (use .png or .svg)")),
     }
 }
