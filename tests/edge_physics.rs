@@ -49,6 +49,31 @@ fn heliocentric_at_rest(z: f64, ra: f64, dec: f64) -> f64 {
         .value()
 }
 
+/// Write `csv` to `NAME.csv` in `dir`, run `flowsift COMMAND` on it with `extra` flags, and
+/// return the output path (`NAME_out.csv`); the run must succeed.
+fn run_on(
+    dir: &std::path::Path,
+    command: &str,
+    name: &str,
+    csv: &str,
+    extra: &[&str],
+) -> std::path::PathBuf {
+    let input = dir.join(format!("{name}.csv"));
+    std::fs::write(&input, csv).unwrap();
+    let out = dir.join(format!("{name}_out.csv"));
+    flowsift()
+        .args([
+            command,
+            input.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ])
+        .args(extra)
+        .assert()
+        .success();
+    out
+}
+
 fn f64s(path: &std::path::Path, name: &str) -> Vec<f64> {
     let t = read_table(path, &ReadOptions::default()).unwrap();
     t.frame
@@ -70,7 +95,6 @@ fn f64s(path: &std::path::Path, name: &str) -> Vec<f64> {
 #[test]
 fn malmquist_shift_of_eta_is_the_log_space_mean() {
     let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("eta.csv");
     let mut text = String::from("ra,dec,z_helio,eta,eta_err\n");
     for (i, e) in [0.02, 0.05, 0.087, 0.12].iter().enumerate() {
         text.push_str(&format!(
@@ -80,17 +104,7 @@ fn malmquist_shift_of_eta_is_the_log_space_mean() {
             0.03
         ));
     }
-    std::fs::write(&input, text).unwrap();
-    let out = dir.path().join("out.csv");
-    flowsift()
-        .args([
-            "malmquist",
-            input.to_str().unwrap(),
-            "-o",
-            out.to_str().unwrap(),
-        ])
-        .assert()
-        .success();
+    let out = run_on(dir.path(), "malmquist", "eta", &text, &[]);
     let eta = f64s(&out, "eta_input");
     let corrected = f64s(&out, "distance_malmquist");
     let ln10 = std::f64::consts::LN_10;
@@ -112,28 +126,20 @@ fn malmquist_shift_of_eta_is_the_log_space_mean() {
 #[test]
 fn monte_carlo_draws_the_intrinsic_scatter() {
     let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("one.csv");
-    std::fs::write(
-        &input,
+    let out = run_on(
+        dir.path(),
+        "velocities",
+        "one",
         "ra,dec,z_helio,mu,mu_err\n150,20,0.03,35.55,0.001\n210,-30,0.05,36.7,0.001\n",
-    )
-    .unwrap();
-    let out = dir.path().join("out.csv");
-    flowsift()
-        .args([
-            "velocities",
-            input.to_str().unwrap(),
-            "-o",
-            out.to_str().unwrap(),
+        &[
             "--sigma-star",
             "300",
             "--monte-carlo",
             "4000",
             "--seed",
             "11",
-        ])
-        .assert()
-        .success();
+        ],
+    );
     let err = f64s(&out, "v_pec_err");
     let (lo, hi) = (f64s(&out, "v_pec_mc_p16"), f64s(&out, "v_pec_mc_p84"));
     for i in 0..2 {
@@ -175,20 +181,13 @@ fn galaxies_at_rest_beyond_the_angular_diameter_maximum() {
                 5.0 * d_l.log10() + 25.0
             ));
         }
-        let input = dir.path().join(format!("{convention}.csv"));
-        std::fs::write(&input, csv).unwrap();
-        let out = dir.path().join(format!("{convention}_out.csv"));
-        flowsift()
-            .args([
-                "velocities",
-                input.to_str().unwrap(),
-                "-o",
-                out.to_str().unwrap(),
-                "--dl-convention",
-                convention,
-            ])
-            .assert()
-            .success();
+        let out = run_on(
+            dir.path(),
+            "velocities",
+            convention,
+            &csv,
+            &["--dl-convention", convention],
+        );
         for (i, v) in f64s(&out, "v_pec").iter().enumerate() {
             assert!(
                 v.abs() < 1.0,
@@ -223,20 +222,13 @@ fn angular_diameter_distances_at_rest() {
             };
             csv.push_str(&format!("{ra},{dec},{z_helio},{da}\n"));
         }
-        let input = dir.path().join(format!("{convention}.csv"));
-        std::fs::write(&input, csv).unwrap();
-        let out = dir.path().join(format!("{convention}_out.csv"));
-        flowsift()
-            .args([
-                "velocities",
-                input.to_str().unwrap(),
-                "-o",
-                out.to_str().unwrap(),
-                "--dl-convention",
-                convention,
-            ])
-            .assert()
-            .success();
+        let out = run_on(
+            dir.path(),
+            "velocities",
+            convention,
+            &csv,
+            &["--dl-convention", convention],
+        );
         let z_cos = f64s(&out, "z_cos");
         for (i, v) in f64s(&out, "v_pec").iter().enumerate() {
             assert!(
@@ -336,22 +328,13 @@ fn lcdm_expectation_keeps_the_physical_baryon_density() {
 #[test]
 fn absurd_moduli_have_no_cosmological_solution() {
     let dir = tempfile::tempdir().unwrap();
-    let input = dir.path().join("m.csv");
-    std::fs::write(
-        &input,
+    let out = run_on(
+        dir.path(),
+        "velocities",
+        "m",
         "ra,dec,z_helio,mu\n10,10,0.02,1e20\n10,10,0.02,-1e20\n10,10,0.02,34\n",
-    )
-    .unwrap();
-    let out = dir.path().join("o.csv");
-    flowsift()
-        .args([
-            "velocities",
-            input.to_str().unwrap(),
-            "-o",
-            out.to_str().unwrap(),
-        ])
-        .assert()
-        .success();
+        &[],
+    );
     let text = std::fs::read_to_string(&out).unwrap();
     let status: Vec<&str> = text
         .lines()
