@@ -92,10 +92,7 @@ fn mock_table(n: usize, bad: usize, with_mu: bool) -> Table {
     columns.push(Column::new("status".into(), status));
     columns.push(Column::new("outlier".into(), outlier));
     columns.push(Column::new("outlier_reason".into(), reason));
-    Table {
-        frame: DataFrame::new(n, columns).unwrap(),
-        meta: Default::default(),
-    }
+    Table::new(DataFrame::new(n, columns).unwrap(), Default::default())
 }
 
 fn bulkflow_json() -> serde_json::Value {
@@ -313,10 +310,7 @@ fn tables_with_no_usable_rows_still_give_every_figure() {
 #[test]
 fn a_table_that_is_not_a_flowsift_output_is_refused() {
     let frame = DataFrame::new(2, vec![Column::new("x".into(), [1.0, 2.0])]).unwrap();
-    let table = Table {
-        frame,
-        meta: Default::default(),
-    };
+    let table = Table::new(frame, Default::default());
     let dir = tempfile::tempdir().unwrap();
     let e = render_all(&table, &PlotOptions::default(), dir.path()).unwrap_err();
     assert!(e.contains("z_cmb"), "{e}");

@@ -90,7 +90,7 @@ fn messy_fits(dir: &Path, distance_unit: &str) -> (PathBuf, Vec<f64>) {
     let path = dir.join("messy.fits");
     write_table(
         &path,
-        &Table { frame, meta: m },
+        &Table::new(frame, m),
         &Provenance::default(),
         &WriteOptions::default(),
     )
@@ -195,10 +195,7 @@ fn correct_reads_the_catalogue_like_velocities() {
     .unwrap();
     write_table(
         &plain,
-        &Table {
-            frame,
-            meta: Default::default(),
-        },
+        &Table::new(frame, Default::default()),
         &Provenance::default(),
         &WriteOptions::default(),
     )

@@ -68,10 +68,7 @@ fn input_table(r: &Reference) -> Table {
         ],
     )
     .unwrap();
-    Table {
-        frame,
-        meta: BTreeMap::new(),
-    }
+    Table::new(frame, BTreeMap::new())
 }
 
 fn write(path: &Path, t: &Table) {
@@ -350,13 +347,7 @@ fn monte_carlo_agrees_and_reproduces() {
     )
     .unwrap();
     let ip = dir.path().join("in.parquet");
-    write(
-        &ip,
-        &Table {
-            frame,
-            meta: BTreeMap::new(),
-        },
-    );
+    write(&ip, &Table::new(frame, BTreeMap::new()));
     let run = |name: &str, threads: &str, seed: &str| -> Table {
         let op = dir.path().join(name);
         let out = flowsift()
@@ -441,7 +432,7 @@ fn columns_found_by_ucd_and_unit() {
         ("CZ".to_string(), m("km/s", "src.redshift")),
         ("DM".to_string(), m("mag", "phot.mag.distMod")),
     ]);
-    let table = Table { frame, meta };
+    let table = Table::new(frame, meta);
     // FITS keeps them as TUCDn/TUNITn; Parquet as flowsift's key-value metadata, which is
     // read back, so the same mapping is found in both.
     for (input, output) in [("ucd.fits", "out.parquet"), ("ucd.parquet", "out.fits")] {

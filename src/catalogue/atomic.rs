@@ -7,11 +7,82 @@
 
 use std::fs::File;
 use std::path::{Path, PathBuf};
+use std::sync::Mutex;
 
 use super::CatalogueError;
 
 /// Prefix of every temporary file flowsift creates next to an output.
 pub const PARTIAL_PREFIX: &str = ".flowsift-partial-";
+
+/// Temporary files being written now, so that an interrupted run can remove them
+/// ([`remove_unfinished`]).
+static UNFINISHED: Mutex<Vec<PathBuf>> = Mutex::new(Vec::new());
+
+fn unfinished() -> std::sync::MutexGuard<'static, Vec<PathBuf>> {
+    UNFINISHED.lock().unwrap_or_else(|e| e.into_inner())
+}
+
+/// A temporary file listed in [`UNFINISHED`] while it lives.
+struct Listed(PathBuf);
+
+impl Listed {
+    fn new(path: &Path) -> Listed {
+        unfinished().push(path.to_path_buf());
+        Listed(path.to_path_buf())
+    }
+}
+
+impl Drop for Listed {
+    fn drop(&mut self) {
+        let mut list = unfinished();
+        if let Some(i) = list.iter().position(|p| *p == self.0) {
+            list.swap_remove(i);
+        }
+    }
+}
+
+/// Remove every temporary file this process is writing (for a signal handler: the process
+/// is about to exit, and no destructor will run). Outputs already moved into place stay.
+pub fn remove_unfinished() {
+    for path in unfinished().iter() {
+        std::fs::remove_file(path).ok();
+    }
+}
+
+/// Temporary files left in `folder` by a run that was killed before it could remove them
+/// (for a caution: they can be deleted).
+pub fn leftovers_in(folder: &Path) -> Vec<PathBuf> {
+    let Ok(entries) = std::fs::read_dir(folder) else {
+        return vec![];
+    };
+    let live = unfinished().clone();
+    let mut found: Vec<PathBuf> = entries
+        .flatten()
+        .filter(|e| e.file_name().to_string_lossy().starts_with(PARTIAL_PREFIX))
+        .map(|e| e.path())
+        .filter(|p| !live.contains(p))
+        .collect();
+    found.sort();
+    found
+}
+
+/// The caution for the leftovers in the folder of `output`, if any.
+pub fn leftovers_note(output: &Path) -> Option<String> {
+    let found = leftovers_in(folder_of(output));
+    (!found.is_empty()).then(|| {
+        format!(
+            "{} unfinished file(s) left in {} by an earlier flowsift run that was killed \
+             while writing (safe to delete): {}.",
+            found.len(),
+            folder_of(output).display(),
+            found
+                .iter()
+                .map(|p| p.display().to_string())
+                .collect::<Vec<_>>()
+                .join(", ")
+        )
+    })
+}
 
 /// The folder a file is in ("." for a bare name).
 pub fn folder_of(path: &Path) -> &Path {
@@ -71,6 +142,7 @@ pub fn write_via_file(
     fill: impl FnOnce(&File) -> Result<(), String>,
 ) -> Result<(), CatalogueError> {
     let tmp = temporary(path)?;
+    let _listed = Listed::new(tmp.path());
     fill(tmp.as_file())
         .map_err(|e| CatalogueError::write(path, name_destination(e, tmp.path(), path)))?;
     set_readable(tmp.path());
@@ -86,6 +158,7 @@ pub fn write_via_path(
 ) -> Result<(), CatalogueError> {
     let tmp = temporary(path)?.into_temp_path();
     let tmp_path: PathBuf = tmp.to_path_buf();
+    let _listed = Listed::new(&tmp_path);
     // The writer creates the file itself; the guard removes whatever is left on failure.
     std::fs::remove_file(&tmp_path).ok();
     fill(&tmp_path)

@@ -204,15 +204,7 @@ fn read_density_table(
             polars::prelude::Column::new("vz".into(), zeros),
         ])
         .map_err(|e| err(e.to_string()))?;
-    grid_from_table(
-        &Table {
-            frame,
-            meta: table.meta.clone(),
-        },
-        axes_hint,
-        unit_hint,
-    )
-    .map_err(err)
+    grid_from_table(&Table::new(frame, table.meta.clone()), axes_hint, unit_hint).map_err(err)
 }
 
 /// Write `grid` as a FITS field file (the [FITS form](self)). Atomic: the file is built under
@@ -291,7 +283,7 @@ pub fn grid_table(grid: &VelocityGrid) -> Result<Table, CatalogueError> {
     }
     let frame = DataFrame::new(n, columns)
         .map_err(|e| CatalogueError::write(Path::new("<field table>"), e.to_string()))?;
-    Ok(Table { frame, meta })
+    Ok(Table::new(frame, meta))
 }
 
 /// Write the table form of `grid` (any format [`write_table`] writes, with its atomic

@@ -5,10 +5,12 @@ pub mod atomic;
 mod cfitsio;
 pub mod clock;
 pub mod column_schema;
+pub mod contained;
 pub mod field_io;
 pub mod fits;
 pub mod provenance;
 pub mod record;
+pub mod storable;
 pub mod units;
 
 use std::collections::BTreeMap;
@@ -32,6 +34,19 @@ pub struct ColumnMeta {
 pub struct Table {
     pub frame: DataFrame,
     pub meta: BTreeMap<String, ColumnMeta>,
+    /// What reading the file noted for the run's summary (lines skipped, columns widened).
+    pub notes: Vec<String>,
+}
+
+impl Table {
+    /// A table of these columns and their metadata, with nothing noted.
+    pub fn new(frame: DataFrame, meta: BTreeMap<String, ColumnMeta>) -> Table {
+        Table {
+            frame,
+            meta,
+            notes: Vec::new(),
+        }
+    }
 }
 
 pub use provenance::{read_provenance, sidecar_path, FoundProvenance, Provenance};
@@ -117,18 +132,12 @@ pub fn read_table(path: &Path, options: &ReadOptions) -> Result<Table, Catalogue
         return Err(CatalogueError::read(path, "no such file"));
     }
     match Format::from_path(path)? {
-        Format::Fits => fits::read_fits(path, options.hdu.as_deref()),
-        Format::Csv => delimited::read_delimited(path, b','),
-        Format::Tsv => delimited::read_delimited(path, b'\t'),
-        // The Parquet reader can panic on a corrupt file: that becomes an error naming it.
-        Format::Parquet => {
-            std::panic::catch_unwind(|| parquet::read_parquet(path)).unwrap_or_else(|_| {
-                Err(CatalogueError::read(
-                    path,
-                    "unreadable Parquet file (its reader failed on the file's contents)",
-                ))
-            })
-        }
+        Format::Fits => contained::read(path, "FITS", || {
+            fits::read_fits(path, options.hdu.as_deref())
+        }),
+        Format::Csv => contained::read(path, "CSV", || delimited::read_delimited(path, b',')),
+        Format::Tsv => contained::read(path, "TSV", || delimited::read_delimited(path, b'\t')),
+        Format::Parquet => contained::read(path, "Parquet", || parquet::read_parquet(path)),
     }
 }
 
@@ -142,8 +151,12 @@ pub fn read_table_keeping_text(
         return Err(CatalogueError::read(path, "no such file"));
     }
     match Format::from_path(path)? {
-        Format::Csv => delimited::read_delimited_keeping_text(path, b','),
-        Format::Tsv => delimited::read_delimited_keeping_text(path, b'\t'),
+        Format::Csv => contained::read(path, "CSV", || {
+            delimited::read_delimited_keeping_text(path, b',')
+        }),
+        Format::Tsv => contained::read(path, "TSV", || {
+            delimited::read_delimited_keeping_text(path, b'\t')
+        }),
         _ => Ok((read_table(path, options)?, None)),
     }
 }
@@ -155,6 +168,20 @@ pub struct WriteOptions {
     pub force: bool,
     /// Paths that must never be written (the inputs).
     pub protected: Vec<PathBuf>,
+}
+
+/// The note for a run's summary when an output cannot hold some of the table's columns
+/// (see [`storable`]); `None` when it holds them all.
+pub fn left_out_note(path: &Path, table: &Table) -> Option<String> {
+    let format = Format::from_path(path).ok()?;
+    let names = storable::left_out(format, table);
+    (!names.is_empty()).then(|| {
+        format!(
+            "{}: columns its format cannot hold were left out: {}.",
+            path.display(),
+            names.join(", ")
+        )
+    })
 }
 
 /// Write a table atomically: into a temporary file in the output's folder, then renamed
@@ -188,6 +215,8 @@ pub fn write_table_with_text(
         )
     })?;
     check_destination(path, options)?;
+    let prepared = storable::prepare(format, table).map_err(|e| CatalogueError::write(path, e))?;
+    let table = prepared.as_ref().unwrap_or(table);
     match format {
         // cfitsio creates its file by name.
         Format::Fits => atomic::write_via_path(path, |tmp| {

@@ -26,9 +26,22 @@ pub fn read_parquet(path: &Path) -> Result<Table, CatalogueError> {
         .flatten()
         .find(|kv| kv.key == COLUMNS_KEY)
         .and_then(|kv| kv.value.clone());
+    let stated_rows = reader
+        .num_rows()
+        .map_err(|e| CatalogueError::read(path, format!("cannot read as Parquet: {e}")))?;
     let frame = reader
         .finish()
         .map_err(|e| CatalogueError::read(path, format!("cannot read as Parquet: {e}")))?;
+    if frame.height() != stated_rows {
+        return Err(CatalogueError::read(
+            path,
+            format!(
+                "the file's footer states {stated_rows} rows but {} were read; the file is \
+                 damaged",
+                frame.height()
+            ),
+        ));
+    }
     let mut meta: BTreeMap<String, ColumnMeta> = match stored {
         Some(text) => serde_json::from_str(&text).map_err(|e| {
             CatalogueError::read(
@@ -39,7 +52,52 @@ pub fn read_parquet(path: &Path) -> Result<Table, CatalogueError> {
         None => BTreeMap::new(),
     };
     meta.retain(|name, _| frame.column(name).is_ok());
-    Ok(Table { frame, meta })
+    let (frame, notes) = widen_narrow(frame).map_err(|e| CatalogueError::read(path, e))?;
+    let mut table = Table::new(frame, meta);
+    table.notes = notes
+        .into_iter()
+        .map(|n| format!("{}: {n}", path.display()))
+        .collect();
+    Ok(table)
+}
+
+/// Narrow integers (8 and 16 bits) become 32-bit integers and half-precision floats
+/// single precision, so that every writer and the pipeline see the common types; the
+/// values are unchanged. Returns what was widened, for the run's summary.
+fn widen_narrow(mut frame: DataFrame) -> Result<(DataFrame, Vec<String>), String> {
+    let mut widened = Vec::new();
+    let names: Vec<PlSmallStr> = frame.get_column_names_owned();
+    for name in names {
+        let dtype = frame
+            .column(&name)
+            .map_err(|e| e.to_string())?
+            .dtype()
+            .clone();
+        let to = match dtype {
+            DataType::Int8 | DataType::Int16 | DataType::UInt8 | DataType::UInt16 => {
+                DataType::Int32
+            }
+            DataType::Float16 => DataType::Float32,
+            _ => continue,
+        };
+        let cast = frame
+            .column(&name)
+            .and_then(|c| c.cast(&to))
+            .map_err(|e| format!("column '{name}' ({dtype}): {e}"))?;
+        frame
+            .replace(&name, cast)
+            .map_err(|e| format!("column '{name}': {e}"))?;
+        widened.push(format!("'{name}' ({dtype} → {to})"));
+    }
+    let notes = if widened.is_empty() {
+        vec![]
+    } else {
+        vec![format!(
+            "columns widened, values unchanged: {}.",
+            widened.join(", ")
+        )]
+    };
+    Ok((frame, notes))
 }
 
 /// Provenance entries as key-value metadata (keys prefixed `flowsift.`), plus the column

@@ -134,7 +134,7 @@ pub fn export_table(
     }
     let frame = DataFrame::new(keep.len(), columns).map_err(|e| e.to_string())?;
     Ok((
-        Table { frame, meta },
+        Table::new(frame, meta),
         ExportSummary {
             rows_in: n,
             rows_out: keep.len(),

@@ -55,6 +55,6 @@ impl MockCatalogue {
         ] {
             m.insert(name.to_string(), meta(unit, ucd));
         }
-        Table { frame, meta: m }
+        Table::new(frame, m)
     }
 }

@@ -225,7 +225,7 @@ pub fn assemble(
         crate::catalogue::column_schema::STATUS.meta(length_label),
     );
     let frame = frame.hstack(&cols).map_err(|e| e.to_string())?;
-    Ok((Table { frame, meta }, renames))
+    Ok((Table::new(frame, meta), renames))
 }
 
 #[cfg(test)]

@@ -185,8 +185,11 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
     cols.push(Column::new("field_flag".into(), flags.clone()));
     meta.insert("field_flag".into(), meta_of("field_flag", ""));
     let frame = frame.hstack(&cols).map_err(|e| e.to_string())?;
-    let out = Table { frame, meta };
+    let out = Table::new(frame, meta);
     let mut cautions = shared.cautions();
+    cautions.extend(table.notes.iter().cloned());
+    cautions.extend(crate::catalogue::atomic::leftovers_note(&plan.output));
+    cautions.extend(crate::catalogue::left_out_note(&plan.output, &out));
     cautions.extend([
         format!("Velocity model: {model_description}."),
         format!(

@@ -247,6 +247,8 @@ pub fn run_velocities(
     let cosmology = cosmology_reaching(shared.cosmology.params, top_redshift(&input))?;
     let ctx = object_context(shared, &cosmology, columns.length_unit);
     let mut notes = shared.cautions();
+    notes.extend(table.notes.iter().cloned());
+    notes.extend(crate::catalogue::atomic::leftovers_note(&plan.output));
     if !replaced.is_empty() {
         notes.push("The input is a flowsift output: its derived columns were recomputed.".into());
     }
@@ -346,6 +348,7 @@ pub fn run_velocities(
         }
     }
 
+    notes.extend(crate::catalogue::left_out_note(&plan.output, &out_table));
     let record = velocity_record(
         plan,
         &columns,

@@ -40,13 +40,16 @@ pub fn strip_earlier_run(table: Table) -> (Table, Vec<String>) {
         .filter(|n| has(n))
         .map(str::to_string)
         .collect();
-    let mut frame = table.frame;
-    let mut meta = table.meta;
+    let Table {
+        mut frame,
+        mut meta,
+        notes,
+    } = table;
     for n in &drop {
         frame = frame.drop(n).expect("present");
         meta.remove(n);
     }
-    (Table { frame, meta }, drop)
+    (Table { frame, meta, notes }, drop)
 }
 
 fn read_profile(path: &Path) -> Result<RadialProfile, String> {
@@ -303,10 +306,10 @@ pub fn group_table(
                 .collect::<Vec<_>>(),
         ),
     ];
-    let base = Table {
-        frame: DataFrame::new(n, std::mem::take(&mut frame_cols)).map_err(|e| e.to_string())?,
-        meta: Default::default(),
-    };
+    let base = Table::new(
+        DataFrame::new(n, std::mem::take(&mut frame_cols)).map_err(|e| e.to_string())?,
+        Default::default(),
+    );
     let group_derived = Derived {
         columns: cols,
         status,

@@ -127,6 +127,22 @@ pub(super) fn table_shape(file: &FitsHandle) -> Result<(usize, usize), c_int> {
     ok(status).map(|()| (ncols.max(0) as usize, nrows.max(0) as usize))
 }
 
+/// cfitsio lists HDUs up to the first one whose header it cannot read: when bytes follow
+/// the last HDU listed, the next one is damaged, and this says how.
+fn damaged_after(file: &FitsHandle, hdus: &[HduSummary]) -> Option<String> {
+    /// cfitsio's status for "tried to move past the end of the file".
+    const END_OF_FILE: c_int = 107;
+    let next = hdus.len();
+    match file.move_to(next) {
+        Err(status) if status != END_OF_FILE => Some(format!(
+            "the header of HDU {next} is damaged ({}); {}",
+            status_text(status),
+            hdu_listing(hdus)
+        )),
+        _ => None,
+    }
+}
+
 fn hdu_listing(hdus: &[HduSummary]) -> String {
     let lines: Vec<String> = hdus.iter().map(|h| format!("\n  {}", h.line())).collect();
     format!("HDUs in this file:{}", lines.concat())
@@ -138,7 +154,12 @@ pub(super) fn select_hdu(file: &FitsHandle, hdu: Option<&str>) -> Result<HduSumm
     let index = match hdu.map(str::trim) {
         None => match hdus.iter().find(|h| h.hdu_type == BINARY_TBL) {
             Some(h) => h.index,
-            None => return Err(format!("no binary-table HDU; {}", hdu_listing(&hdus))),
+            None => {
+                return Err(match damaged_after(file, &hdus) {
+                    Some(damage) => damage,
+                    None => format!("no binary-table HDU; {}", hdu_listing(&hdus)),
+                })
+            }
         },
         Some(spec) if !spec.is_empty() && spec.bytes().all(|b| b.is_ascii_digit()) => {
             match spec.parse::<usize>().ok().filter(|&i| i < hdus.len()) {

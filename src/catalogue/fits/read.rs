@@ -220,6 +220,8 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
     let mut layout = Vec::with_capacity(ncols);
     let mut meta = std::collections::BTreeMap::new();
     let mut seen = HashSet::new();
+    let mut left_out = Vec::new();
+    let mut keep = Vec::with_capacity(ncols);
     for i in 0..ncols {
         let number = (i + 1) as c_int;
         let name = key(&format!("TTYPE{number}"))?
@@ -232,11 +234,26 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
             ));
         }
         let tform = key(&format!("TFORM{number}"))?.unwrap_or_default();
-        let kind = column_kind(file, number)
-            .map_err(|s| format!("{here}: column '{name}': {}", status_text(s)))
-            .and_then(|k| {
-                k.map_err(|why| format!("{here}: {why}", why = why.describe(&name, &tform)))
-            })?;
+        let kind = match column_kind(file, number)
+            .map_err(|s| format!("{here}: column '{name}': {}", status_text(s)))?
+        {
+            Ok(kind) => kind,
+            Err(why) => {
+                // A column flowsift cannot hold is left out (and named), so that the rest
+                // of the table can still be read.
+                left_out.push(why.describe(&name, &tform));
+                keep.push(false);
+                layout.push(parse_tform(&tform).and_then(|(r, t)| tform_bytes(r, t)));
+                columns.push(ReadColumn {
+                    number,
+                    name,
+                    kind: ReadKind::Empty(DataType::Null),
+                    direct: None,
+                });
+                continue;
+            }
+        };
+        keep.push(true);
         let text = |k: String| -> Result<Option<String>, String> {
             Ok(key(&k)?
                 .map(|v| v.trim().to_string())
@@ -280,6 +297,8 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
         }
         _ => columns.iter_mut().for_each(|c| c.direct = None),
     }
+    let mut kept = keep.iter();
+    columns.retain(|_| *kept.next().expect("one flag per column"));
     let row_bytes = row_bytes.unwrap_or(0);
     let any_direct = columns.iter().any(|c| c.direct.is_some());
 
@@ -506,7 +525,15 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
         .collect();
     let frame = DataFrame::new(nrows, frame_columns)
         .map_err(|e| format!("{here}: cannot assemble the table: {e}"))?;
-    Ok(Table { frame, meta })
+    let mut table = Table::new(frame, meta);
+    if !left_out.is_empty() {
+        table.notes.push(format!(
+            "{here}: columns flowsift cannot read (it reads one number, flag or text per \
+             cell) were left out: {}.",
+            left_out.join(", ")
+        ));
+    }
+    Ok(table)
 }
 
 fn finish_column(column: ReadColumn, buffer: ReadBuffer, nrows: usize) -> Column {
@@ -566,19 +593,13 @@ impl Unsupported {
     fn describe(&self, name: &str, tform: &str) -> String {
         let tform = tform.trim();
         match self {
-            Unsupported::Vector { repeat } => format!(
-                "vector column '{name}' (repeat {repeat}, TFORM '{tform}') is not supported; \
-                 flowsift reads one value per cell — split it into scalar columns first"
-            ),
-            Unsupported::StringVector { count, width } => format!(
-                "vector column '{name}' (repeat {count} strings of {width} characters, TFORM \
-                 '{tform}') is not supported; flowsift reads one value per cell — split it \
-                 into scalar columns first"
-            ),
-            Unsupported::Type(what) => format!(
-                "column '{name}' (TFORM '{tform}') holds {what}, which is not supported; \
-                 supported are E, D, B, I, J, K, L and A columns with one value per cell"
-            ),
+            Unsupported::Vector { repeat } => {
+                format!("'{name}' (a vector of {repeat} values, TFORM '{tform}')")
+            }
+            Unsupported::StringVector { count, width } => {
+                format!("'{name}' ({count} strings of {width} characters, TFORM '{tform}')")
+            }
+            Unsupported::Type(what) => format!("'{name}' ({what}, TFORM '{tform}')"),
         }
     }
 }

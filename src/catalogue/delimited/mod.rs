@@ -16,6 +16,10 @@ use rayon::prelude::*;
 
 use super::{CatalogueError, Table};
 
+pub mod layout;
+
+use layout::Layout;
+
 /// Rows used to infer column types on the fast path.
 const INFER_ROWS: usize = 10_000;
 /// Entries read as nulls (beside an empty field).
@@ -28,75 +32,120 @@ const COPY_BATCH_ROWS: usize = 4_096;
 /// written (memory: about twice this many blocks of COPY_BATCH_ROWS lines).
 const BATCHES_PER_WRITE: usize = 4;
 
-/// Read a delimited file with a header line. Lines starting with '#' are comments. Column
-/// types are inferred from the first rows; if a later entry does not fit (a stray word in a
-/// number column), the file is read again with types inferred from every row, so that such
-/// a column is read as text and each entry is checked by the pipeline (a per-row status,
-/// not a failure).
+/// Read a delimited file with a header line ([`layout`] gives the rules for comments,
+/// blank lines, line endings and names). Column types are inferred from the first rows; if
+/// a later entry does not fit (a stray word in a number column), the file is read again
+/// with types inferred from every row, so that such a column is read as text and each entry
+/// is checked by the pipeline (a per-row status, not a failure).
 pub fn read_delimited(path: &Path, separator: u8) -> Result<Table, CatalogueError> {
-    let read = |infer: Option<usize>| {
-        options(separator, infer)
-            .with_has_header(true)
-            .try_into_reader_with_file_path(Some(path.to_path_buf()))
-            .and_then(|r| r.finish())
-    };
-    let frame = match read(Some(INFER_ROWS)) {
-        Ok(f) => f,
-        Err(_) => read(None).map_err(|e| {
-            CatalogueError::read(path, format!("cannot read as delimited text: {e}"))
-        })?,
-    };
-    Ok(Table {
-        frame,
-        meta: Default::default(),
-    })
+    read(path, separator, false).map(|(table, _)| table)
 }
 
 /// As [`read_delimited`], and also the file's text when it can be copied into an output
-/// ([`SourceText`]); `None` when it cannot (quoted fields, blank lines, ragged rows …).
+/// ([`SourceText`]); `None` when it cannot (quoted fields, blank lines among the records,
+/// CR line endings …).
 pub fn read_delimited_keeping_text(
     path: &Path,
     separator: u8,
 ) -> Result<(Table, Option<SourceText>), CatalogueError> {
+    read(path, separator, true)
+}
+
+fn read(
+    path: &Path,
+    separator: u8,
+    keep_text: bool,
+) -> Result<(Table, Option<SourceText>), CatalogueError> {
     let file = File::open(path).map_err(|e| CatalogueError::read(path, e.to_string()))?;
+    let empty = file.metadata().map(|m| m.len() == 0).unwrap_or(false);
+    if empty {
+        return Err(CatalogueError::read(
+            path,
+            "the file is empty: no header line",
+        ));
+    }
     // SAFETY: the map is read-only; as with polars' own mapping of its inputs, the file
     // must not be changed by another process while flowsift runs.
-    let map = match unsafe { memmap2::Mmap::map(&file) } {
-        Ok(m) if !m.is_empty() => m,
-        _ => return Ok((read_delimited(path, separator)?, None)),
+    let map = unsafe { memmap2::Mmap::map(&file) }
+        .map_err(|e| CatalogueError::read(path, format!("cannot map the file: {e}")))?;
+    let layout =
+        layout::scan(&map, separator, keep_text).map_err(|m| CatalogueError::read(path, m))?;
+    let cleaned;
+    let text: &[u8] = if layout.is_contiguous() {
+        &map[layout.header.start..layout.body.end]
+    } else {
+        cleaned = layout.cleaned(&map);
+        &cleaned
     };
-    let read = |infer: Option<usize>| {
-        options(separator, infer)
+    let parse = |infer: Option<usize>| {
+        options(separator, layout.eol, infer)
             .with_has_header(true)
-            .into_reader_with_file_handle(std::io::Cursor::new(&map[..]))
+            .into_reader_with_file_handle(std::io::Cursor::new(text))
             .finish()
     };
-    let frame = match read(Some(INFER_ROWS)) {
+    let mut frame = match parse(Some(INFER_ROWS)) {
         Ok(f) => f,
-        Err(_) => read(None).map_err(|e| {
+        Err(_) => parse(None).map_err(|e| {
             CatalogueError::read(path, format!("cannot read as delimited text: {e}"))
         })?,
     };
-    let text = SourceText::scan(map, separator).filter(|t| t.matches(&frame));
-    if let Some(t) = &text {
+    if frame.height() != layout.records || frame.width() != layout.names.len() {
+        return Err(CatalogueError::read(
+            path,
+            format!(
+                "the parser found {} rows of {} columns where the file has {} records of {} \
+                 fields; nothing was written",
+                frame.height(),
+                frame.width(),
+                layout.records,
+                layout.names.len()
+            ),
+        ));
+    }
+    frame
+        .set_column_names(&layout.names)
+        .map_err(|e| CatalogueError::read(path, format!("column names: {e}")))?;
+    let mut notes = Vec::new();
+    if layout.comment_lines > 0 {
+        notes.push(format!(
+            "{}: {} comment line(s) before the header skipped.",
+            path.display(),
+            layout.comment_lines
+        ));
+    }
+    if layout.blank_lines > 0 {
+        notes.push(format!(
+            "{}: {} blank line(s) skipped (a blank line is not a row).",
+            path.display(),
+            layout.blank_lines
+        ));
+    }
+    let source = if keep_text {
+        SourceText::from_layout(map, layout, separator).filter(|t| t.matches(&frame))
+    } else {
+        None
+    };
+    if let Some(t) = &source {
         t.release(0, t.rows.len());
     }
     Ok((
         Table {
             frame,
             meta: Default::default(),
+            notes,
         },
-        text,
+        source,
     ))
 }
 
-/// The parse options shared by every way of reading.
-fn options(separator: u8, infer: Option<usize>) -> CsvReadOptions {
+/// The parse options shared by every way of reading: no comment prefix (comments before
+/// the header are cut off by [`layout`]), the file's own line break.
+fn options(separator: u8, eol: u8, infer: Option<usize>) -> CsvReadOptions {
     CsvReadOptions::default()
         .with_infer_schema_length(infer)
         .map_parse_options(|p| {
             p.with_separator(separator)
-                .with_comment_prefix(Some("#"))
+                .with_eol_char(eol)
                 .with_missing_is_null(true)
                 .with_null_values(Some(NullValues::AllColumns(
                     NULL_WORDS.iter().map(|w| (*w).into()).collect(),
@@ -379,89 +428,20 @@ pub struct SourceText {
 }
 
 impl SourceText {
-    /// Index the lines of `map`. `None` (so that polars writes the whole output) for: a
-    /// byte-order mark; any quote character (a quoted field may hold separators or line
-    /// breaks); a blank line before the end; a line with another number of fields than the
-    /// header. Comment lines (starting with '#') are skipped, as polars skips them.
-    pub fn scan(map: memmap2::Mmap, separator: u8) -> Option<SourceText> {
-        let bytes: &[u8] = &map;
-        if bytes.starts_with(&[0xEF, 0xBB, 0xBF]) || memchr::memchr(b'"', bytes).is_some() {
+    /// The text of a file whose layout allows copying: no quote character (a quoted field
+    /// may hold separators or line breaks), no blank line among the records, LF or CRLF
+    /// line endings, and the records' starts found by the scan.
+    pub fn from_layout(map: memmap2::Mmap, layout: Layout, separator: u8) -> Option<SourceText> {
+        if layout.quoted || !layout.is_contiguous() || layout.eol != b'\n' {
             return None;
         }
-        // Lines are found in pieces in parallel; each piece starts just after a line break.
-        let pieces = 64usize;
-        let mut cuts = vec![0usize];
-        for p in 1..pieces {
-            let at = (bytes.len() * p / pieces).max(*cuts.last().expect("non-empty"));
-            let cut = memchr::memchr(b'\n', &bytes[at..]).map_or(bytes.len(), |i| at + i + 1);
-            cuts.push(cut);
-        }
-        cuts.push(bytes.len());
-        cuts.dedup();
-        // Per piece: the first byte of each line, and of each blank line.
-        let found: Vec<(Vec<usize>, Vec<usize>)> = cuts
-            .par_windows(2)
-            .map(|w| {
-                let (from, to) = (w[0], w[1]);
-                let mut lines = Vec::new();
-                let mut blanks = Vec::new();
-                let mut start = from;
-                let mut piece = |a: usize, b: usize| {
-                    let mut end = b;
-                    if end > a && bytes[end - 1] == b'\r' {
-                        end -= 1;
-                    }
-                    if end == a {
-                        blanks.push(a);
-                    } else if bytes[a] != b'#' {
-                        lines.push(a);
-                    }
-                };
-                for nl in memchr::memchr_iter(b'\n', &bytes[from..to]) {
-                    piece(start, from + nl);
-                    start = from + nl + 1;
-                }
-                if start < to {
-                    piece(start, to);
-                }
-                (lines, blanks)
-            })
-            .collect();
-        let last_line_start = found
-            .iter()
-            .rev()
-            .find_map(|(l, _)| l.last().copied())
-            .unwrap_or(0);
-        // Blank lines are allowed only after the last line.
-        if found
-            .iter()
-            .any(|(_, blanks)| blanks.iter().any(|&b| b < last_line_start))
-        {
-            return None;
-        }
-        let header_start = *found.iter().find_map(|(l, _)| l.first())?;
-        let mut lines: Vec<usize> = Vec::with_capacity(
-            found
-                .iter()
-                .map(|f| f.0.len())
-                .sum::<usize>()
-                .saturating_sub(1),
-        );
-        for (l, _) in found {
-            lines.extend(l.into_iter().filter(|&a| a != header_start));
-        }
-        let header_line = line_at(bytes, header_start);
-        let header = (header_start, header_line.len());
-        let columns: Vec<String> = bytes[header.0..header.0 + header.1]
-            .split(|&b| b == separator)
-            .map(|f| String::from_utf8_lossy(f).into_owned())
-            .collect();
+        let rows = layout.record_starts?;
         Some(SourceText {
             map,
             separator,
-            header,
-            rows: lines,
-            columns,
+            header: (layout.header.start, layout.header.len()),
+            rows,
+            columns: layout.names,
         })
     }
 
