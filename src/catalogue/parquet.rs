@@ -29,6 +29,20 @@ pub fn read_parquet(path: &Path) -> Result<Table, CatalogueError> {
     let stated_rows = reader
         .num_rows()
         .map_err(|e| CatalogueError::read(path, format!("cannot read as Parquet: {e}")))?;
+    // A damaged footer can state any row count, and the columns are allocated for it before
+    // a page is read. Rows of distinct sky positions take at least a bit each, so a count
+    // above eight per byte of the file is refused (an absurd count would abort the
+    // process, not fail).
+    let file_bytes = std::fs::metadata(path).map(|m| m.len()).unwrap_or(0);
+    if stated_rows as u64 > file_bytes.saturating_mul(8) {
+        return Err(CatalogueError::read(
+            path,
+            format!(
+                "the file's footer states {stated_rows} rows, more than its {file_bytes} \
+                 bytes can hold; the file is damaged"
+            ),
+        ));
+    }
     let frame = reader
         .finish()
         .map_err(|e| CatalogueError::read(path, format!("cannot read as Parquet: {e}")))?;
