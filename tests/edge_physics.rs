@@ -370,3 +370,55 @@ fn huge_monte_carlo_counts_are_refused() {
         assert!(err.contains("more than the 1000000"), "{err}");
     }
 }
+
+/// `v_rec` is the recession velocity today, H0·D_C(z_cos): for galaxies at rest given the
+/// distance modulus of astropy's D_L(z) (fixture `distances.csv`, flat ΛCDM H0 = 70,
+/// Ω_m = 0.3, astropy 8.0.2; cosmological convention, in which at rest z_cos = z), v_rec is
+/// 70 km/s/Mpc × astropy's D_C(z), beyond c where D_C > c/H0 (z > 1.46), while v_pec ≈ 0. Its
+/// error is c·σ(z_cos)/E(z_cos), with astropy's E(z) from the same fixture.
+#[test]
+fn recession_velocity_is_h0_times_the_comoving_distance() {
+    let d_c = flat_lcdm_fixture("d_c");
+    let d_l = flat_lcdm_fixture("d_l");
+    let e = flat_lcdm_fixture("hubble_e");
+    let (ra, dec) = (40.0, -30.0);
+    let mut csv = String::from("ra,dec,z_helio,mu,mu_err\n");
+    for (z, dl) in &d_l {
+        let z_helio = heliocentric_at_rest(*z, ra, dec);
+        csv.push_str(&format!(
+            "{ra},{dec},{z_helio},{},0.1\n",
+            5.0 * dl.log10() + 25.0
+        ));
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let out = run_on(
+        dir.path(),
+        "velocities",
+        "recession",
+        &csv,
+        &["--dl-convention", "cosmological"],
+    );
+    let v_rec = f64s(&out, "v_rec");
+    let v_rec_err = f64s(&out, "v_rec_err");
+    let z_cos_err = f64s(&out, "z_cos_err");
+    let v_pec = f64s(&out, "v_pec");
+    let c = 299_792.458; // km/s, exact (SI definition of the metre)
+    let mut beyond_c = 0;
+    for (i, ((z, dc), (_, ez))) in d_c.iter().zip(&e).enumerate() {
+        let expected = 70.0 * dc;
+        assert!(
+            (v_rec[i] - expected).abs() < 1e-6 * expected.max(1.0),
+            "z = {z}: v_rec {} vs H0·D_C {expected}",
+            v_rec[i]
+        );
+        assert!(v_pec[i].abs() < 0.01, "z = {z}: v_pec = {}", v_pec[i]);
+        let err = c * z_cos_err[i] / ez;
+        assert!(
+            (v_rec_err[i] - err).abs() < 1e-6 * err,
+            "z = {z}: v_rec_err {} vs c·σ/E {err}",
+            v_rec_err[i]
+        );
+        beyond_c += usize::from(v_rec[i] > c);
+    }
+    assert!(beyond_c > 0, "the fixture reaches D_C > c/H0");
+}

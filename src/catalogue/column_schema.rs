@@ -40,7 +40,7 @@ const fn col(
 use UnitOf::{Fixed, None as NoUnit, RunLength};
 
 /// The derived columns of every `velocities` row, in output order.
-pub const DERIVED: [ColumnSpec; 16] = [
+pub const DERIVED: [ColumnSpec; 18] = [
     col(
         "glon",
         Fixed("deg"),
@@ -136,6 +136,18 @@ pub const DERIVED: [ColumnSpec; 16] = [
         RunLength,
         "pos.distance",
         "comoving distance D_C(z_cos)",
+    ),
+    col(
+        "v_rec",
+        Fixed("km/s"),
+        "phys.veloc",
+        "recession velocity today, H0·D_C(z_cos) (expansion; not bounded by c)",
+    ),
+    col(
+        "v_rec_err",
+        Fixed("km/s"),
+        "stat.error;phys.veloc",
+        "first-order error of v_rec, c·σ(z_cos)/E(z_cos)",
     ),
 ];
 

@@ -58,6 +58,14 @@ pub struct ObjectResult {
     pub eta_err: f64,
     pub d_c: f64,
     pub d_l: f64,
+    /// Recession velocity today, H0·D_C(z_cos), km/s: the expansion part of the motion
+    /// (the rate of change of the proper distance at fixed comoving coordinate, ȧ·χ), which
+    /// is not a velocity through space and is not bounded by c. Hubble (1929)'s law taken
+    /// exactly in FRW coordinates (e.g. Davis & Lineweaver 2004, PASA 21, 97, eq. 1; journal
+    /// reference from memory).
+    pub v_rec: f64,
+    /// First-order error of `v_rec`: H0·dD_C/dz·σ(z_cos) = c·σ(z_cos)/E(z_cos).
+    pub v_rec_err: f64,
     /// c z_cmb − H0 d (comparison only).
     pub v_pec_low_z: f64,
     /// Watkins & Feldman (2015) estimator (comparison only).
@@ -170,6 +178,8 @@ pub fn evaluate_with(
         eta_err: pv.eta_err,
         d_c: pv.d_c * factor,
         d_l: pv.d_l * factor,
+        v_rec: ctx.cosmology.params().h0 * pv.d_c,
+        v_rec_err: C_KM_S * pv.z_cos_err / ctx.cosmology.efunc(pv.z_cos),
         v_pec_low_z: low_redshift_velocity(ctx.cosmology.params().h0, z_cmb, measured_d),
         v_pec_watkins_feldman: watkins_feldman_velocity(ctx.cosmology, z_cmb, pv.d_l),
     })

@@ -24,7 +24,7 @@ pub const CHUNK: usize = 8192;
 pub use crate::catalogue::column_schema::DERIVED as OUTPUT_COLUMNS;
 
 /// The derived values of one object in the order of [`OUTPUT_COLUMNS`].
-pub fn output_values(r: &ObjectResult) -> [f64; 16] {
+pub fn output_values(r: &ObjectResult) -> [f64; 18] {
     [
         r.glon,
         r.glat,
@@ -42,6 +42,8 @@ pub fn output_values(r: &ObjectResult) -> [f64; 16] {
         r.eta,
         r.eta_err,
         r.d_c,
+        r.v_rec,
+        r.v_rec_err,
     ]
 }
 
@@ -50,6 +52,7 @@ mod col {
     pub const Z_COS_ERR: usize = 9;
     pub const V_PEC_ERR: usize = 12;
     pub const ETA_ERR: usize = 14;
+    pub const V_REC_ERR: usize = 17;
 }
 
 /// Derived columns (NaN where the row's status is not ok) and the status codes.
@@ -71,7 +74,7 @@ impl Derived {
     /// Set every error column to NaN (written as null): for runs where no error was given,
     /// so that no one reads a zero as a measured error.
     pub fn clear_errors(&mut self) {
-        for k in [col::Z_COS_ERR, col::V_PEC_ERR, col::ETA_ERR] {
+        for k in [col::Z_COS_ERR, col::V_PEC_ERR, col::ETA_ERR, col::V_REC_ERR] {
             self.columns[k].iter_mut().for_each(|v| *v = f64::NAN);
         }
     }
@@ -145,7 +148,8 @@ pub fn derive(
                             o[j] = v;
                         }
                         if input.error_missing[i] {
-                            for k in [col::Z_COS_ERR, col::V_PEC_ERR, col::ETA_ERR] {
+                            for k in [col::Z_COS_ERR, col::V_PEC_ERR, col::ETA_ERR, col::V_REC_ERR]
+                            {
                                 out[k][j] = f64::NAN;
                             }
                         }
@@ -237,6 +241,7 @@ mod tests {
         assert_eq!(OUTPUT_COLUMNS[col::Z_COS_ERR].name, "z_cos_err");
         assert_eq!(OUTPUT_COLUMNS[col::V_PEC_ERR].name, "v_pec_err");
         assert_eq!(OUTPUT_COLUMNS[col::ETA_ERR].name, "eta_err");
+        assert_eq!(OUTPUT_COLUMNS[col::V_REC_ERR].name, "v_rec_err");
         assert_eq!(
             OUTPUT_COLUMNS.len(),
             output_values(&ObjectResult::default()).len()
