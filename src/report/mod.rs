@@ -30,6 +30,7 @@ use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
 use crate::catalogue::Table;
+use crate::flow::bulk_flow_report::BulkFlowReport;
 use crate::physics::cosmology::{Cosmology, CosmologyParams};
 
 pub use html::write_report;
@@ -81,9 +82,10 @@ pub struct PlotOptions {
     pub sky: SkyChoice,
     /// PNG, SVG or both.
     pub format: ImageFormat,
-    /// The bulk-flow result (`OUTPUT.bulkflow.json`), for the direction on the sky map; without
+    /// The bulk-flow result (`OUTPUT.bulkflow.json`, read by
+    /// `catalogue::bulk_flow_file::read_bulk_flow`), for the direction on the sky map; without
     /// it the map says that no bulk flow is marked.
-    pub bulkflow: Option<serde_json::Value>,
+    pub bulkflow: Option<BulkFlowReport>,
     /// Cosmology of the model curve in the Hubble diagram (default flat ΛCDM, H0 = 70, Ω_m = 0.3).
     pub cosmology: CosmologyParams,
     /// Figure size in pixels (SVG: the same size in user units).

@@ -376,15 +376,7 @@ pub fn run_velocities(
     }
     let mut bulk_summary = None;
     if let (Some(report), Some(path)) = (bulk, &plan.bulk_flow_output) {
-        let mut value = serde_json::to_value(&report).map_err(|e| e.to_string())?;
-        if let Some(m) = value.as_object_mut() {
-            m.insert(
-                "record".into(),
-                serde_json::to_value(&record).map_err(|e| e.to_string())?,
-            );
-        }
-        crate::catalogue::write_json_atomically(path, &value, plan.force)
-            .map_err(|e| e.to_string())?;
+        crate::catalogue::bulk_flow_file::write_bulk_flow(path, &report, &record, plan.force)?;
         bulk_summary = Some((report, path.clone()));
     }
     let mut export_summary = None;
