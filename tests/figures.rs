@@ -15,7 +15,9 @@ use flowsift::catalogue::{write_table, Provenance, RunRecord, Table, WriteOption
 use flowsift::flow::bulk_flow_report::{AxesReport, BulkFlowReport, LcdmComparison};
 use flowsift::physics::cosmology::{Cosmology, CosmologyParams};
 use flowsift::physics::sky::{galactic_to_supergalactic, Direction, Galactic};
-use flowsift::report::{render_all, write_report, ImageFormat, PlotOptions, SkyChoice};
+use flowsift::report::{
+    render_all, write_report, ImageFormat, PlotOptions, ReportError, SkyChoice,
+};
 use flowsift::settings::FitSpace;
 
 const C: f64 = 299_792.458;
@@ -371,7 +373,14 @@ fn a_table_that_is_not_a_flowsift_output_is_refused() {
     };
     let dir = tempfile::tempdir().unwrap();
     let e = render_all(&table, &PlotOptions::default(), dir.path()).unwrap_err();
-    assert!(e.contains("z_cmb"), "{e}");
+    assert!(
+        matches!(&e, ReportError::MissingColumn { name } if name == "z_cmb"),
+        "{e:?}"
+    );
+    assert_eq!(
+        e.to_string(),
+        "no column z_cmb: is this a flowsift output table?"
+    );
 }
 
 #[test]

@@ -9,7 +9,7 @@ use crate::physics::dipole_likelihood::{amplitude_direction, BulkFlowFit, SigmaS
 use crate::physics::sky::{Rotation, SkyFrame, SkyRotations};
 
 use super::fit::{fit_subset, fit_vectors, fittable};
-use super::FlowSample;
+use super::{FlowError, FlowSample};
 use crate::settings::FitSpace;
 
 /// serde_json writes a number that is not finite (an amplitude error of a zero flow, say) as
@@ -126,7 +126,7 @@ fn rotate<A: SkyFrame, B: SkyFrame>(
 
 /// Computes the ΛCDM expectation from a fit, the objects' positions (Mpc) and their κ.
 pub type LcdmHook<'a> =
-    dyn Fn(&BulkFlowFit, &[[f64; 3]], &[f64]) -> Result<LcdmComparison, String> + 'a;
+    dyn Fn(&BulkFlowFit, &[[f64; 3]], &[f64]) -> Result<LcdmComparison, FlowError> + 'a;
 
 /// Fit the sample's flow; `lcdm` computes the expectation from the fit's weights.
 pub fn bulk_flow(
@@ -135,7 +135,7 @@ pub fn bulk_flow(
     space: FitSpace,
     sigma_star: SigmaStar,
     lcdm: Option<&LcdmHook<'_>>,
-) -> Result<BulkFlowReport, String> {
+) -> Result<BulkFlowReport, FlowError> {
     let (y, e, k) = fit_vectors(sample, cosmology, space);
     let keep = fittable(sample, &y, &e, &k);
     let (fit, idx) = fit_subset(sample, &y, &e, &k, &keep, sigma_star)?;

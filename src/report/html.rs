@@ -6,7 +6,7 @@ use std::path::{Path, PathBuf};
 use serde_json::Value;
 
 use super::data::{self, is_ok, numbers, outlier_summary, status_counts};
-use super::Figure;
+use super::{Figure, ReportError};
 use crate::catalogue::Table;
 use crate::flow::bulk_flow_report::BulkFlowReport;
 
@@ -22,9 +22,10 @@ pub fn write_report(
     figures: &[PathBuf],
     bulkflow: Option<&BulkFlowReport>,
     out: &Path,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let html = render(table, input, figures, bulkflow, out)?;
-    super::atomic_write(out, html.as_bytes()).map_err(|e| format!("{}: {e}", out.display()))
+    crate::catalogue::atomic::write_bytes(out, html.as_bytes())
+        .map_err(|e| ReportError::output(out, e.into()))
 }
 
 fn render(
@@ -33,7 +34,7 @@ fn render(
     figures: &[PathBuf],
     bulkflow: Option<&BulkFlowReport>,
     out: &Path,
-) -> Result<String, String> {
+) -> Result<String, ReportError> {
     let mut h = String::with_capacity(1 << 20);
     let name = input
         .file_name()
@@ -310,7 +311,7 @@ fn settings_section(h: &mut String, p: &[(String, String)]) {
     h.push_str("</table></details>\n");
 }
 
-fn rows_section(h: &mut String, table: &Table) -> Result<(), String> {
+fn rows_section(h: &mut String, table: &Table) -> Result<(), ReportError> {
     h.push_str("<h2 id=\"rows\">Rows</h2>\n");
     let counts = status_counts(table)?;
     let total = table.frame.height();
@@ -336,7 +337,7 @@ fn rows_section(h: &mut String, table: &Table) -> Result<(), String> {
         Some(s) => s.iter().map(|v| is_ok(v.as_deref())).collect(),
         None => vec![false; total],
     };
-    let summary = |name: &str, unit: &str| -> Result<Option<String>, String> {
+    let summary = |name: &str, unit: &str| -> Result<Option<String>, ReportError> {
         let Some(v) = numbers(table, name)? else {
             return Ok(None);
         };
@@ -379,7 +380,7 @@ fn rows_section(h: &mut String, table: &Table) -> Result<(), String> {
     Ok(())
 }
 
-fn outliers_section(h: &mut String, table: &Table) -> Result<(), String> {
+fn outliers_section(h: &mut String, table: &Table) -> Result<(), ReportError> {
     h.push_str("<h2 id=\"outliers\">Outliers</h2>\n");
     let s = outlier_summary(table)?;
     if !s.has_column {
@@ -582,7 +583,7 @@ fn href(file: &Path, out: &Path) -> String {
     o
 }
 
-fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<(), String> {
+fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<(), ReportError> {
     if figures.is_empty() {
         return Ok(());
     }
@@ -612,7 +613,7 @@ fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<()
             .unwrap_or("Figure.");
         let _ = write!(h, "<figure id=\"fig-{}\">", esc(&stem));
         if let Some(p) = png {
-            let bytes = std::fs::read(p).map_err(|e| format!("{}: {e}", p.display()))?;
+            let bytes = std::fs::read(p).map_err(|e| ReportError::file(p, e.to_string()))?;
             let _ = write!(
                 h,
                 "<img alt=\"{}\" src=\"data:image/png;base64,{}\">",
@@ -620,10 +621,11 @@ fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<()
                 base64(&bytes)
             );
         } else if let Some(p) = svg {
-            let text = std::fs::read_to_string(p).map_err(|e| format!("{}: {e}", p.display()))?;
+            let text =
+                std::fs::read_to_string(p).map_err(|e| ReportError::file(p, e.to_string()))?;
             let start = text
                 .find("<svg")
-                .ok_or_else(|| format!("{}: not an SVG file", p.display()))?;
+                .ok_or_else(|| ReportError::file(p, "not an SVG file"))?;
             h.push_str(&text[start..]);
         } else {
             h.push_str("<p class=\"note\">(not an image that can be embedded)</p>");

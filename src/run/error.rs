@@ -1,11 +1,14 @@
 //! What can stop a command once its plan is made: typed by layer (the plan, a file, the
-//! physics, a stage), each printing as one message naming what went wrong and where.
+//! physics, a sample stage, the report, or a stage's own message), each printing as one
+//! message naming what went wrong and where.
 
 use thiserror::Error;
 
 use crate::catalogue::CatalogueError;
+use crate::flow::FlowError;
 use crate::physics::PhysicsError;
 use crate::plan::PlanError;
+use crate::report::ReportError;
 
 #[derive(Debug, Error)]
 pub enum RunError {
@@ -15,8 +18,12 @@ pub enum RunError {
     Catalogue(#[from] CatalogueError),
     #[error(transparent)]
     Physics(#[from] PhysicsError),
-    /// A stage that could not finish (a column missing from a flowsift output, a singular
-    /// fit, …), with the message of the layer that found it.
+    #[error(transparent)]
+    Flow(#[from] FlowError),
+    #[error(transparent)]
+    Report(#[from] ReportError),
+    /// A step that could not finish, with its own message (the Malmquist profile, a velocity
+    /// model, a group column, …).
     #[error("{0}")]
     Failed(String),
 }

@@ -12,6 +12,8 @@ use crate::report::data::{galactic_to_supergalactic_deg, supergalactic_to_galact
 use crate::report::projection::{mollweide, HALF_HEIGHT, HALF_WIDTH};
 use crate::report::SkyChoice;
 
+use crate::report::ReportError;
+
 use super::axis::{fixed, nice_ceil, number, Axis};
 use super::layout::{frame, halo_text, ring, text, Scale, LABEL_GREY};
 use super::stats::{quantile, sorted};
@@ -80,7 +82,7 @@ fn draw_star<DB: DrawingBackend>(
     sc: Scale,
     at: (i32, i32),
     size: f64,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let pts = star(at, size * sc.0, size * 0.42 * sc.0);
     area.draw(&Polygon::new(pts.clone(), RGBColor(255, 200, 30).filled()))
         .map_err(de)?;
@@ -95,7 +97,7 @@ fn draw_dipole<DB: DrawingBackend>(
     sc: Scale,
     at: (i32, i32),
     size: f64,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let r = sc.px(size);
     area.draw(&Circle::new(at, r, WHITE.filled())).map_err(de)?;
     area.draw(&Circle::new(at, r, INK.stroke_width(sc.upx(2.6))))
@@ -115,7 +117,7 @@ pub(super) fn sky_map<DB: DrawingBackend>(
     ctx: &Context<'_>,
     root: &Area<DB>,
     sky: SkyChoice,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let sc = Scale::of(ctx);
     let sample = ctx.sample;
     let names = lon_lat_names(sky);
