@@ -235,12 +235,12 @@ pub fn run_velocities(
 ) -> Result<RunSummary, RunError> {
     let cfg = plan.config();
     let shared = &plan.shared;
-    let where_ = |e: String| format!("{}: {e}", plan.input.display());
+    let where_ = |e: RunError| RunError::in_file(&plan.input, e);
 
     let (table, source_text, replaced) = read_catalogue(plan)?;
-    let columns =
-        resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit).map_err(where_)?;
-    let mut input = pipeline::extract(&table, &columns).map_err(where_)?;
+    let columns = resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit)
+        .map_err(|e| where_(e.into()))?;
+    let mut input = pipeline::extract(&table, &columns).map_err(|e| where_(e.into()))?;
     // Groups combine the members' own distances: keep them when Malmquist changes them.
     let uncorrected_distance =
         (cfg.groups.is_some() && cfg.malmquist.is_some()).then(|| input.distance.clone());
