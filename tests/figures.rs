@@ -10,10 +10,15 @@ use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, Normal, Uniform};
 
-use flowsift::catalogue::{write_table, Provenance, Table, WriteOptions};
+use flowsift::catalogue::bulk_flow_file::{read_bulk_flow, write_bulk_flow};
+use flowsift::catalogue::{write_table, Provenance, RunRecord, Table, WriteOptions};
+use flowsift::flow::bulk_flow_report::{AxesReport, BulkFlowReport, LcdmComparison};
 use flowsift::physics::cosmology::{Cosmology, CosmologyParams};
 use flowsift::physics::sky::{galactic_to_supergalactic, Direction, Galactic};
-use flowsift::report::{render_all, write_report, ImageFormat, PlotOptions, SkyChoice};
+use flowsift::report::{
+    render_all, write_report, ImageFormat, PlotOptions, ReportError, SkyChoice,
+};
+use flowsift::settings::FitSpace;
 
 const C: f64 = 299_792.458;
 
@@ -95,22 +100,71 @@ fn mock_table(n: usize, bad: usize, with_mu: bool) -> Table {
     Table::new(DataFrame::new(n, columns).unwrap(), Default::default())
 }
 
-fn bulkflow_json() -> serde_json::Value {
-    serde_json::json!({
-        "amplitude": 250.0,
-        "amplitude_err": 80.0,
-        "l": 290.0,
-        "b": 10.0,
-        "v_galactic": [80.0, -230.0, 43.0],
-        "cov": [[6400.0, 0.0, 0.0], [0.0, 6400.0, 0.0], [0.0, 0.0, 6400.0]],
-        "n_used": 380,
-        "fit_space": "eta",
-        "sigma_star": 150.0,
-        "sigma_star_fitted": true,
-        "supergalactic": {"v": [-200.0, 50.0, -120.0], "cov": [[6400.0, 0.0, 0.0], [0.0, 6400.0, 0.0], [0.0, 0.0, 6400.0]]},
-        "lcdm": {"lcdm_rms": [110.0, 111.0, 109.0], "chi2": 4.2, "dof": 3, "probability": 0.24},
-        "cautions": ["The amplitude of a noisy vector is biased high."]
-    })
+/// A bulk-flow result, built as the type the bulk-flow stage returns (so it cannot drift from
+/// what the stage writes).
+fn bulk_flow_fixture() -> BulkFlowReport {
+    let cov = [[6400.0, 0.0, 0.0], [0.0, 6400.0, 0.0], [0.0, 0.0, 6400.0]];
+    BulkFlowReport {
+        v_galactic: [80.0, -230.0, 43.0],
+        cov,
+        amplitude: 250.0,
+        amplitude_err: 80.0,
+        l: 290.0,
+        b: 10.0,
+        supergalactic: AxesReport {
+            v: [-200.0, 50.0, -120.0],
+            cov,
+        },
+        equatorial: AxesReport {
+            v: [-150.0, 180.0, -60.0],
+            cov,
+        },
+        sigma_star: 150.0,
+        sigma_star_fitted: true,
+        n_used: 380,
+        fit_space: FitSpace::Eta,
+        chi2: 391.0,
+        lcdm: Some(LcdmComparison {
+            lcdm_rms: [110.0, 111.0, 109.0],
+            lcdm_cov: [
+                [12100.0, 0.0, 0.0],
+                [0.0, 12321.0, 0.0],
+                [0.0, 0.0, 11881.0],
+            ],
+            chi2: 4.2,
+            dof: 3,
+            probability: 0.24,
+            growth_rate: 0.52,
+            sigma8: 0.81,
+            window: "pair sum over the fit's objects".into(),
+            power_spectrum: "Eisenstein & Hu (1998)".into(),
+        }),
+        cautions: vec!["The amplitude of a noisy vector is biased high.".into()],
+    }
+}
+
+/// Write the fixture to `path` with the one bulk-flow writer, as the stage does.
+fn write_bulk_flow_fixture(path: &Path) {
+    let record = RunRecord::new(
+        "bulkflow",
+        "flowsift bulkflow (test fixture)",
+        "2026-12-01T00:00:00Z",
+    );
+    write_bulk_flow(path, &bulk_flow_fixture(), &record, false).unwrap();
+}
+
+/// The fixture as `plot` gets it: written, then read back by the one reader.
+fn bulk_flow_result() -> BulkFlowReport {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("fixture.bulkflow.json");
+    write_bulk_flow_fixture(&path);
+    let read = read_bulk_flow(&path).unwrap();
+    assert_eq!(
+        read,
+        bulk_flow_fixture(),
+        "the bulk-flow file reads back as written"
+    );
+    read
 }
 
 /// Width and height from a PNG's IHDR chunk (bytes 16–23, big-endian).
@@ -141,7 +195,7 @@ fn all_figures_in_both_formats_and_a_self_contained_report() {
     let table = mock_table(400, 12, true);
     let dir = tempfile::tempdir().unwrap();
     let options = PlotOptions {
-        bulkflow: Some(bulkflow_json()),
+        bulkflow: Some(bulk_flow_result()),
         label: Some("mock.fits".into()),
         ..PlotOptions::default()
     };
@@ -208,7 +262,7 @@ fn all_figures_in_both_formats_and_a_self_contained_report() {
     // The report: one file, every figure embedded (PNG preferred) and linked.
     let report = dir.path().join("report.html");
     let input = dir.path().join("mock.fits");
-    write_report(&table, &input, &files, Some(&bulkflow_json()), &report).unwrap();
+    write_report(&table, &input, &files, Some(&bulk_flow_result()), &report).unwrap();
     let html = std::fs::read_to_string(&report).unwrap();
     assert!(html.starts_with("<!DOCTYPE html>"));
     for f in &files {
@@ -313,7 +367,14 @@ fn a_table_that_is_not_a_flowsift_output_is_refused() {
     let table = Table::new(frame, Default::default());
     let dir = tempfile::tempdir().unwrap();
     let e = render_all(&table, &PlotOptions::default(), dir.path()).unwrap_err();
-    assert!(e.contains("z_cmb"), "{e}");
+    assert!(
+        matches!(&e, ReportError::MissingColumn { name } if name == "z_cmb"),
+        "{e:?}"
+    );
+    assert_eq!(
+        e.to_string(),
+        "no column z_cmb: is this a flowsift output table?"
+    );
 }
 
 #[test]
@@ -338,7 +399,7 @@ fn plot_command_writes_figures_and_report_with_provenance() {
     )
     .unwrap();
     let bulk = dir.path().join("sample.csv.bulkflow.json");
-    std::fs::write(&bulk, serde_json::to_string(&bulkflow_json()).unwrap()).unwrap();
+    write_bulk_flow_fixture(&bulk);
     let out = dir.path().join("figs");
     let assert = Command::cargo_bin("flowsift")
         .unwrap()
@@ -368,6 +429,32 @@ fn plot_command_writes_figures_and_report_with_provenance() {
     assert!(html.contains("observed"));
     assert!(html.contains("sample.csv.provenance.json"));
     assert_eq!(html.matches("data:image/png;base64,").count(), 4);
+    assert!(
+        html.contains("250 ± 80 km/s towards l = 290.0°, b = 10.0°"),
+        "bulk flow from the file next to the input"
+    );
+    // A JSON file that is not a bulk-flow result: one message naming it, exit 1.
+    let other = dir.path().join("other.json");
+    std::fs::write(&other, r#"{"amplitude": 250.0, "l": 290.0, "b": 10.0}"#).unwrap();
+    let assert = Command::cargo_bin("flowsift")
+        .unwrap()
+        .args(["plot"])
+        .arg(&input)
+        .arg("--out-dir")
+        .arg(&out)
+        .arg("--bulkflow")
+        .arg(&other)
+        .assert()
+        .failure()
+        .code(1);
+    let stderr = String::from_utf8_lossy(&assert.get_output().stderr).to_string();
+    assert!(
+        stderr.contains(&format!(
+            "{}: not a flowsift bulk-flow result",
+            other.display()
+        )) && stderr.contains("missing field"),
+        "{stderr}"
+    );
     // Bad input: one message, exit 1.
     Command::cargo_bin("flowsift")
         .unwrap()

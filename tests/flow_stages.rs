@@ -5,6 +5,7 @@
 use std::collections::BTreeMap;
 
 use assert_cmd::Command;
+use flowsift::catalogue::bulk_flow_file::read_bulk_flow;
 use flowsift::catalogue::{read_table, write_table, Provenance, ReadOptions, Table, WriteOptions};
 use flowsift::flow::outliers::{flag_outliers, OutlierSettings};
 use flowsift::flow::FlowSample;
@@ -337,6 +338,12 @@ fn stages_from_a_run_file() {
         assert!(json.get(k).is_some(), "{k} missing");
     }
     assert!(json["supergalactic"]["v"].is_array() && json["equatorial"]["v"].is_array());
+    // The typed reader reads every key the stage wrote: written again, the report is the file
+    // without its record.
+    let typed = read_bulk_flow(&dir.path().join("out.fits.bulkflow.json")).unwrap();
+    let mut without_record = json.clone();
+    without_record.as_object_mut().unwrap().remove("record");
+    assert_eq!(serde_json::to_value(&typed).unwrap(), without_record);
     let export = read_table(&dir.path().join("out.flow.fits"), &ReadOptions::default()).unwrap();
     let kept = flags.iter().filter(|f| !**f).count();
     assert_eq!(export.frame.height(), kept);

@@ -2,6 +2,7 @@
 //! back with units, UCDs and provenance. Nothing here does physics.
 
 pub mod atomic;
+pub mod bulk_flow_file;
 mod cfitsio;
 pub mod clock;
 pub mod column_schema;

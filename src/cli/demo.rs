@@ -228,10 +228,7 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
         summary.output.clone()
     };
     let table = read_table(&figure_source, &ReadOptions::default())?;
-    let bulkflow = summary
-        .bulk_flow
-        .as_ref()
-        .and_then(|(b, _)| serde_json::to_value(b).ok());
+    let bulkflow = summary.bulk_flow.as_ref().map(|(b, _)| b.clone());
     let options = flowsift::report::PlotOptions {
         bulkflow: bulkflow.clone(),
         label: Some(spec.name.clone()),

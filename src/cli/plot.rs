@@ -5,6 +5,7 @@ use std::path::{Path, PathBuf};
 use anyhow::anyhow;
 use clap::{Args, ValueEnum};
 
+use flowsift::catalogue::bulk_flow_file::read_bulk_flow;
 use flowsift::catalogue::{read_table, ReadOptions};
 use flowsift::plan::{plan_stage, StageOrder};
 use flowsift::report::{render_all, write_report, ImageFormat, PlotOptions, SkyChoice};
@@ -89,15 +90,7 @@ pub fn run(a: PlotArgs) -> anyhow::Result<()> {
     })
     .map_err(|e| anyhow!(e))?;
     let table = read_table(&a.input, &ReadOptions { hdu: a.hdu.clone() })?;
-    let bulkflow = match &bulk_path {
-        Some(p) => {
-            let text = std::fs::read_to_string(p).map_err(|e| anyhow!("{}: {e}", p.display()))?;
-            let v: serde_json::Value = serde_json::from_str(&text)
-                .map_err(|e| anyhow!("{}: not JSON: {e}", p.display()))?;
-            Some(v)
-        }
-        None => None,
-    };
+    let bulkflow = bulk_path.as_deref().map(read_bulk_flow).transpose()?;
     let options = PlotOptions {
         sky: match a.sky {
             SkyArg::Galactic => SkyChoice::Galactic,

@@ -153,7 +153,7 @@ pub fn bulkflow(a: BulkFlowArgs) -> anyhow::Result<()> {
         "bulk flow of {} ({} objects, {} space)",
         a.input.display(),
         report.n_used,
-        report.fit_space
+        report.fit_space.name()
     );
     println!(
         "  Galactic (x, y, z): ({:.0} ± {:.0}, {:.0} ± {:.0}, {:.0} ± {:.0}) km/s",

@@ -276,7 +276,7 @@ pub fn print_summary(s: &RunSummary, json: bool) -> anyhow::Result<()> {
     if let Some((b, p)) = &s.bulk_flow {
         println!(
             "bulk flow: {:.0} ± {:.0} km/s towards l = {:.1}°, b = {:.1}° ({} objects, {} space, σ_* = {:.0} km/s) → {}",
-            b.amplitude, b.amplitude_err, b.l, b.b, b.n_used, b.fit_space, b.sigma_star, p.display()
+            b.amplitude, b.amplitude_err, b.l, b.b, b.n_used, b.fit_space.name(), b.sigma_star, p.display()
         );
         if let Some(l) = &b.lcdm {
             println!(

@@ -2,62 +2,101 @@
 //! Galactic, supergalactic and equatorial axes, with the ΛCDM expectation for the sample's
 //! own window (Watkins, Feldman & Hudson 2009) when asked for.
 
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 use crate::physics::cosmology::Cosmology;
 use crate::physics::dipole_likelihood::{amplitude_direction, BulkFlowFit, SigmaStar};
 use crate::physics::sky::{Rotation, SkyFrame, SkyRotations};
 
 use super::fit::{fit_subset, fit_vectors, fittable};
-use super::FlowSample;
+use super::{FlowError, FlowSample};
 use crate::settings::FitSpace;
 
+/// serde_json writes a number that is not finite (an amplitude error of a zero flow, say) as
+/// `null`; these read `null` back as NaN, so that every report written can be read.
+mod null_as_nan {
+    use serde::{Deserialize, Deserializer};
+
+    fn nan(v: Option<f64>) -> f64 {
+        v.unwrap_or(f64::NAN)
+    }
+
+    pub fn number<'de, D: Deserializer<'de>>(d: D) -> Result<f64, D::Error> {
+        Ok(nan(Option::deserialize(d)?))
+    }
+
+    pub fn vector<'de, D: Deserializer<'de>>(d: D) -> Result<[f64; 3], D::Error> {
+        Ok(<[Option<f64>; 3]>::deserialize(d)?.map(nan))
+    }
+
+    pub fn matrix<'de, D: Deserializer<'de>>(d: D) -> Result<[[f64; 3]; 3], D::Error> {
+        Ok(<[[Option<f64>; 3]; 3]>::deserialize(d)?.map(|row| row.map(nan)))
+    }
+}
+
 /// A vector and its covariance in one set of axes.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct AxesReport {
+    #[serde(deserialize_with = "null_as_nan::vector")]
     pub v: [f64; 3],
+    #[serde(deserialize_with = "null_as_nan::matrix")]
     pub cov: [[f64; 3]; 3],
 }
 
 /// ΛCDM comparison.
-#[derive(Debug, Clone, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct LcdmComparison {
     /// Expected rms of each Galactic component of the measured flow from cosmic variance, km/s.
+    #[serde(deserialize_with = "null_as_nan::vector")]
     pub lcdm_rms: [f64; 3],
     /// Expected covariance (cosmic variance only), Galactic axes, (km/s)².
+    #[serde(deserialize_with = "null_as_nan::matrix")]
     pub lcdm_cov: [[f64; 3]; 3],
     /// χ² of the measured flow against zero with covariance = noise + cosmic variance.
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub chi2: f64,
     pub dof: usize,
     /// P(χ²₃ ≥ chi2).
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub probability: f64,
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub growth_rate: f64,
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub sigma8: f64,
     /// How the window was computed.
     pub window: String,
     pub power_spectrum: String,
 }
 
-/// The report (`flowsift bulkflow --json`).
-#[derive(Debug, Clone, Serialize)]
+/// The report (`flowsift bulkflow --json`, and the bulk-flow JSON file, which adds the run's
+/// `record`; read back by `catalogue::bulk_flow_file`).
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BulkFlowReport {
     /// Flow in Galactic Cartesian axes (x → l = 0, y → l = 90°, z → NGP), km/s.
+    #[serde(deserialize_with = "null_as_nan::vector")]
     pub v_galactic: [f64; 3],
     /// Noise covariance, Galactic axes, (km/s)².
+    #[serde(deserialize_with = "null_as_nan::matrix")]
     pub cov: [[f64; 3]; 3],
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub amplitude: f64,
     /// First-order error of the amplitude (the amplitude itself is biased high when it is
     /// not many times its error).
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub amplitude_err: f64,
     /// Galactic direction, degrees.
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub l: f64,
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub b: f64,
     pub supergalactic: AxesReport,
     pub equatorial: AxesReport,
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub sigma_star: f64,
     pub sigma_star_fitted: bool,
     pub n_used: usize,
-    pub fit_space: &'static str,
+    pub fit_space: FitSpace,
+    #[serde(deserialize_with = "null_as_nan::number")]
     pub chi2: f64,
     pub lcdm: Option<LcdmComparison>,
     pub cautions: Vec<String>,
@@ -87,7 +126,7 @@ fn rotate<A: SkyFrame, B: SkyFrame>(
 
 /// Computes the ΛCDM expectation from a fit, the objects' positions (Mpc) and their κ.
 pub type LcdmHook<'a> =
-    dyn Fn(&BulkFlowFit, &[[f64; 3]], &[f64]) -> Result<LcdmComparison, String> + 'a;
+    dyn Fn(&BulkFlowFit, &[[f64; 3]], &[f64]) -> Result<LcdmComparison, FlowError> + 'a;
 
 /// Fit the sample's flow; `lcdm` computes the expectation from the fit's weights.
 pub fn bulk_flow(
@@ -96,7 +135,7 @@ pub fn bulk_flow(
     space: FitSpace,
     sigma_star: SigmaStar,
     lcdm: Option<&LcdmHook<'_>>,
-) -> Result<BulkFlowReport, String> {
+) -> Result<BulkFlowReport, FlowError> {
     let (y, e, k) = fit_vectors(sample, cosmology, space);
     let keep = fittable(sample, &y, &e, &k);
     let (fit, idx) = fit_subset(sample, &y, &e, &k, &keep, sigma_star)?;
@@ -146,7 +185,7 @@ pub fn bulk_flow(
         sigma_star: fit.sigma_star,
         sigma_star_fitted: fit.sigma_star_fitted,
         n_used: fit.n_used,
-        fit_space: space.name(),
+        fit_space: space,
         chi2: fit.chi2,
         lcdm,
         cautions,

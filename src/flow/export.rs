@@ -7,6 +7,7 @@ use crate::catalogue::{ColumnMeta, Table};
 use crate::physics::sky::{Direction, Galactic, SkyRotations};
 
 use super::sample::{float_column, text_column};
+use super::FlowError;
 
 /// What went into the export.
 #[derive(Debug, Clone, serde::Serialize)]
@@ -26,7 +27,7 @@ pub fn export_table(
     h: f64,
     distance_unit_is_h: bool,
     keep_outliers: bool,
-) -> Result<(Table, ExportSummary), String> {
+) -> Result<(Table, ExportSummary), FlowError> {
     let glon = float_column(table, "glon")?;
     let glat = float_column(table, "glat")?;
     let d_c = float_column(table, "d_c")?;
@@ -59,8 +60,12 @@ pub fn export_table(
     let mut cols: Vec<(String, Vec<f64>, &str, &str)> = vec![];
     let mut sg = [vec![], vec![], vec![]];
     for &i in &keep {
-        let d = Direction::<Galactic>::from_lon_lat_deg(glon[i], glat[i])
-            .map_err(|e| format!("row {}: {e}", i + 1))?;
+        let d = Direction::<Galactic>::from_lon_lat_deg(glon[i], glat[i]).map_err(|e| {
+            FlowError::Row {
+                row: i + 1,
+                problem: e.to_string(),
+            }
+        })?;
         let p = rot
             .galactic_to_supergalactic
             .apply(&d)
@@ -132,7 +137,7 @@ pub fn export_table(
                 .collect::<Vec<_>>(),
         ));
     }
-    let frame = DataFrame::new(keep.len(), columns).map_err(|e| e.to_string())?;
+    let frame = DataFrame::new(keep.len(), columns).map_err(|e| FlowError::Table(e.to_string()))?;
     Ok((
         Table::new(frame, meta),
         ExportSummary {

@@ -8,7 +8,7 @@ use crate::physics::dipole_likelihood::{
 };
 use crate::settings::FitSpace;
 
-use super::FlowSample;
+use super::{FlowError, FlowSample};
 
 /// The data vector of the fit space: (y, σ, κ) per row.
 pub fn fit_vectors(
@@ -51,7 +51,7 @@ pub(crate) fn fit_subset(
     k: &[f64],
     keep: &[bool],
     sigma_star: SigmaStar,
-) -> Result<(BulkFlowFit, Vec<usize>), String> {
+) -> Result<(BulkFlowFit, Vec<usize>), FlowError> {
     let idx: Vec<usize> = (0..keep.len()).filter(|&i| keep[i]).collect();
     let dirs: Vec<[f64; 3]> = idx.iter().map(|&i| sample.directions[i]).collect();
     let (yy, ee, kk): (Vec<f64>, Vec<f64>, Vec<f64>) = (
@@ -67,6 +67,7 @@ pub(crate) fn fit_subset(
             kappa: &kk,
         },
         sigma_star,
-    )?;
+    )
+    .map_err(FlowError::Fit)?;
     Ok((fit, idx))
 }

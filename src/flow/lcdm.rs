@@ -4,6 +4,7 @@ use crate::physics::cosmology::Cosmology;
 use crate::physics::dipole_likelihood::BulkFlowFit;
 
 use super::bulk_flow_report::LcdmComparison;
+use super::FlowError;
 use crate::settings::BulkFlowChoice;
 
 /// The ΛCDM expectation for a fitted flow: the covariance of the ML estimator under linear
@@ -19,7 +20,7 @@ pub fn lcdm_comparison(
     kappa: &[f64],
     cosmology: &Cosmology,
     choice: &BulkFlowChoice,
-) -> Result<LcdmComparison, String> {
+) -> Result<LcdmComparison, FlowError> {
     use crate::physics::power::{
         growth_rate_of, lcdm_bulk_flow_covariance_by_separation, LinearPower, PowerParams,
     };
@@ -38,10 +39,10 @@ pub fn lcdm_comparison(
         sigma8: choice.sigma8.unwrap_or(base.sigma8),
     };
     if !(params.omega_b > 0.0 && params.omega_b < params.omega_m) {
-        return Err(format!(
+        return Err(FlowError::Settings(format!(
             "bulk flow: omega_b = {} must lie between 0 and omega_m = {}",
             params.omega_b, params.omega_m
-        ));
+        )));
     }
     let power = LinearPower::new(params);
     let f = growth_rate_of(p, 0.0);
@@ -59,11 +60,14 @@ pub fn lcdm_comparison(
     let total = nalgebra::Matrix3::from_fn(|i, j| r[i][j] + fit.cov[i][j]);
     let inv = total
         .try_inverse()
-        .ok_or("the ΛCDM + noise covariance is singular")?;
+        .ok_or_else(|| FlowError::Fit("the ΛCDM + noise covariance is singular".into()))?;
     let v = nalgebra::Vector3::from(fit.v);
     let chi2 = (v.transpose() * inv * v)[(0, 0)];
     use statrs::distribution::{ChiSquared, ContinuousCDF};
-    let probability = 1.0 - ChiSquared::new(3.0).map_err(|e| e.to_string())?.cdf(chi2);
+    let probability = 1.0
+        - ChiSquared::new(3.0)
+            .map_err(|e| FlowError::Fit(e.to_string()))?
+            .cdf(chi2);
     Ok(LcdmComparison {
         lcdm_rms: [r[0][0].sqrt(), r[1][1].sqrt(), r[2][2].sqrt()],
         lcdm_cov: r,

@@ -3,6 +3,7 @@
 //! `velocities` run writes, so they run inside that run or alone on its output.
 
 pub mod bulk_flow_report;
+mod error;
 pub mod export;
 pub mod fit;
 pub mod groups;
@@ -11,4 +12,5 @@ pub mod line_of_sight;
 pub mod outliers;
 pub mod sample;
 
+pub use error::FlowError;
 pub use sample::FlowSample;

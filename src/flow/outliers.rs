@@ -22,14 +22,14 @@ use crate::physics::dipole_likelihood::{BulkFlowFit, SigmaStar};
 use super::fit::{fit_subset, fit_vectors, fittable};
 use crate::physics::cosmology::Cosmology;
 
-use super::FlowSample;
+use super::{FlowError, FlowSample};
 
 pub use crate::settings::FitSpace;
 use crate::settings::OutlierChoice;
 
 impl OutlierSettings {
     /// Resolved settings, checked.
-    pub fn from_choice(choice: &OutlierChoice) -> Result<OutlierSettings, String> {
+    pub fn from_choice(choice: &OutlierChoice) -> Result<OutlierSettings, FlowError> {
         let c = &choice.filled();
         let s = OutlierSettings {
             threshold: c.threshold.unwrap_or_default(),
@@ -45,29 +45,29 @@ impl OutlierSettings {
             ("neighbour_threshold", s.neighbour_threshold),
         ] {
             if !(v.is_finite() && v > 0.0) {
-                return Err(format!(
+                return Err(FlowError::Settings(format!(
                     "outliers: {name} must be a positive number of σ, got {v}"
-                ));
+                )));
             }
         }
         if let Some(m) = s.max_speed {
             if !(m.is_finite() && m > 0.0) {
-                return Err(format!(
+                return Err(FlowError::Settings(format!(
                     "outliers: max_speed must be a positive speed, got {m}"
-                ));
+                )));
             }
         }
         if s.eta_range[0] >= s.eta_range[1] || s.eta_range.iter().any(|x| x.is_nan()) {
-            return Err(format!(
+            return Err(FlowError::Settings(format!(
                 "outliers: eta_range must be [low, high] with low < high, got {:?}",
                 s.eta_range
-            ));
+            )));
         }
         if let SigmaStar::Fixed(v) = s.sigma_star {
             if !(v.is_finite() && v >= 0.0) {
-                return Err(format!(
+                return Err(FlowError::Settings(format!(
                     "outliers: sigma_star must be non-negative, got {v}"
-                ));
+                )));
             }
         }
         Ok(s)
@@ -137,7 +137,7 @@ pub fn flag_outliers(
     sample: &FlowSample,
     cosmology: &Cosmology,
     s: &OutlierSettings,
-) -> Result<OutlierResult, String> {
+) -> Result<OutlierResult, FlowError> {
     let n = sample.len();
     let (y, e, k) = fit_vectors(sample, cosmology, s.space);
     let usable = fittable(sample, &y, &e, &k);
@@ -203,7 +203,7 @@ pub fn flag_outliers(
                 })
                 .collect();
             let tree = ImmutableKdTree::new_from_slice(&positions)
-                .map_err(|e| format!("neighbour search: {e:?}"))?;
+                .map_err(|e| FlowError::Fit(format!("neighbour search: {e:?}")))?;
             let sstar = flow.sigma_star;
             let u = |i: usize| y[i] / k[i];
             let su2 = |i: usize| (e[i] / k[i]).powi(2) + sstar * sstar;

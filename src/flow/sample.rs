@@ -2,6 +2,7 @@
 
 use polars::prelude::*;
 
+use super::FlowError;
 use crate::catalogue::Table;
 use crate::physics::sky::{Direction, Galactic};
 
@@ -22,7 +23,7 @@ pub struct FlowSample {
 }
 
 /// Column as f64 (nulls → NaN), or an error naming it and listing the columns.
-pub fn float_column(table: &Table, name: &str) -> Result<Vec<f64>, String> {
+pub fn float_column(table: &Table, name: &str) -> Result<Vec<f64>, FlowError> {
     let c = table.frame.column(name).map_err(|_| {
         let names: Vec<String> = table
             .frame
@@ -30,32 +31,34 @@ pub fn float_column(table: &Table, name: &str) -> Result<Vec<f64>, String> {
             .iter()
             .map(|s| s.to_string())
             .collect();
-        format!(
-            "no column {name}; is this a flowsift output? columns: {}",
-            names.join(", ")
-        )
+        FlowError::NotFlowsiftOutput {
+            name: name.to_string(),
+            columns: names,
+        }
     })?;
     let f = c
         .cast(&DataType::Float64)
-        .map_err(|e| format!("column {name}: {e}"))?;
+        .map_err(|e| FlowError::column(name, e))?;
     Ok(f.f64()
-        .map_err(|e| e.to_string())?
+        .map_err(|e| FlowError::column(name, e))?
         .iter()
         .map(|v| v.unwrap_or(f64::NAN))
         .collect())
 }
 
 /// Column as text (nulls → None).
-pub fn text_column(table: &Table, name: &str) -> Result<Vec<Option<String>>, String> {
+pub fn text_column(table: &Table, name: &str) -> Result<Vec<Option<String>>, FlowError> {
     let c = table
         .frame
         .column(name)
-        .map_err(|_| format!("no column {name}"))?;
+        .map_err(|_| FlowError::MissingColumn {
+            name: name.to_string(),
+        })?;
     let s = c
         .cast(&DataType::String)
-        .map_err(|e| format!("column {name}: {e}"))?;
+        .map_err(|e| FlowError::column(name, e))?;
     Ok(s.str()
-        .map_err(|e| e.to_string())?
+        .map_err(|e| FlowError::column(name, e))?
         .iter()
         .map(|v| v.map(str::to_string))
         .collect())
@@ -64,7 +67,7 @@ pub fn text_column(table: &Table, name: &str) -> Result<Vec<Option<String>>, Str
 impl FlowSample {
     /// Read from a flowsift output (columns glon, glat, z_cmb, v_pec, v_pec_err, eta,
     /// eta_err, d_c, status). Rows flagged `outlier` are not usable when `skip_outliers`.
-    pub fn from_table(table: &Table, skip_outliers: bool) -> Result<FlowSample, String> {
+    pub fn from_table(table: &Table, skip_outliers: bool) -> Result<FlowSample, FlowError> {
         let glon = float_column(table, "glon")?;
         let glat = float_column(table, "glat")?;
         let status = text_column(table, "status")?;

@@ -12,6 +12,7 @@ use crate::plan::ColumnPlan;
 use crate::settings::{AngleUnit, RedshiftUnit};
 
 use super::status::RowStatus;
+use super::InputError;
 
 /// The columns the physics needs, one value per row. Missing values are NaN, and the row's
 /// status says why. A column that is already a complete f64 column in canonical units is
@@ -46,11 +47,11 @@ pub(crate) fn read_numbers<'a>(
     table: &'a Table,
     name: &str,
     how: Reading,
-) -> Result<(Cow<'a, [f64]>, Vec<u8>), String> {
+) -> Result<(Cow<'a, [f64]>, Vec<u8>), InputError> {
     let col = table
         .frame
         .column(name)
-        .map_err(|e| format!("column {name}: {e}"))?;
+        .map_err(|e| InputError::column(name, e))?;
     let n = col.len();
     // A complete f64 column (one chunk, no nulls, every value finite) in canonical units is
     // used as it is.
@@ -60,7 +61,11 @@ pub(crate) fn read_numbers<'a>(
             | Reading::Dec(Some(AngleUnit::Rad | AngleUnit::Sexagesimal))
     );
     if canonical && col.dtype() == &DataType::Float64 && col.null_count() == 0 {
-        if let Ok(values) = col.f64().map_err(|e| e.to_string())?.cont_slice() {
+        if let Ok(values) = col
+            .f64()
+            .map_err(|e| InputError::column(name, e))?
+            .cont_slice()
+        {
             if values.iter().all(|x| x.is_finite()) {
                 return Ok((Cow::Borrowed(values), vec![0u8; n]));
             }
@@ -70,7 +75,7 @@ pub(crate) fn read_numbers<'a>(
     let mut codes = vec![0u8; n];
     match col.dtype() {
         DataType::String => {
-            let ca = col.str().map_err(|e| e.to_string())?;
+            let ca = col.str().map_err(|e| InputError::column(name, e))?;
             for (i, v) in ca.iter().enumerate() {
                 match v.map(str::trim) {
                     None | Some("") => codes[i] = 1,
@@ -113,12 +118,14 @@ pub(crate) fn read_numbers<'a>(
             if let Reading::Ra(Some(AngleUnit::Sexagesimal))
             | Reading::Dec(Some(AngleUnit::Sexagesimal)) = how
             {
-                return Err(format!("column {name} holds numbers, but the angle unit is sexagesimal; use --angle-unit deg or rad"));
+                return Err(InputError::NumbersGivenAsSexagesimal {
+                    name: name.to_string(),
+                });
             }
             let f = col
                 .cast(&DataType::Float64)
-                .map_err(|e| format!("column {name}: {e}"))?;
-            let ca = f.f64().map_err(|e| e.to_string())?;
+                .map_err(|e| InputError::column(name, e))?;
+            let ca = f.f64().map_err(|e| InputError::column(name, e))?;
             let scale = match how {
                 Reading::Ra(Some(AngleUnit::Rad)) | Reading::Dec(Some(AngleUnit::Rad)) => 1.0 / DEG,
                 _ => 1.0,
@@ -133,7 +140,12 @@ pub(crate) fn read_numbers<'a>(
             }
         }
         DataType::Null => codes.iter_mut().for_each(|c| *c = 1),
-        other => return Err(format!("column {name} has type {other}; expected numbers")),
+        other => {
+            return Err(InputError::NotNumbers {
+                name: name.to_string(),
+                found: other.to_string(),
+            })
+        }
     }
     Ok((Cow::Owned(values), codes))
 }
@@ -150,7 +162,7 @@ pub(crate) fn check_redshift_unit(
     z: &[f64],
     column: &str,
     unit: RedshiftUnit,
-) -> Result<(), String> {
+) -> Result<(), InputError> {
     let mut finite: Vec<f64> = z
         .iter()
         .copied()
@@ -162,14 +174,16 @@ pub(crate) fn check_redshift_unit(
         let median = *finite.select_nth_unstable_by(mid, |a, b| a.total_cmp(b)).1;
         match unit {
             RedshiftUnit::Z if median > 5.0 => {
-                return Err(format!(
-                    "column {column} looks like c·z in km/s (median |value| {median:.4}), not a redshift; pass --z-unit cz"
-                ))
+                return Err(InputError::LooksLikeVelocity {
+                    name: column.to_string(),
+                    median,
+                })
             }
             RedshiftUnit::Cz if median < 5.0 => {
-                return Err(format!(
-                    "column {column} looks like a redshift (median |value| {median:.4}), not c·z in km/s; pass --z-unit z"
-                ))
+                return Err(InputError::LooksLikeRedshift {
+                    name: column.to_string(),
+                    median,
+                })
             }
             _ => {}
         }
@@ -179,7 +193,7 @@ pub(crate) fn check_redshift_unit(
 
 /// Extract and check the inputs. Errors here are about whole columns (wrong type, a unit
 /// that cannot be right); problems of single rows go into `status`.
-pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'a>, String> {
+pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'a>, InputError> {
     let n = table.frame.height();
     let mut status = vec![RowStatus::Ok as u8; n];
     // The columns are read in parallel; errors are reported in this fixed order.

@@ -2,6 +2,7 @@
 //! out. Rows are processed in chunks on rayon's pool, each chunk writing straight into its
 //! slice of every output column, so no per-row allocation happens in the hot loop.
 
+mod error;
 pub mod inputs;
 pub mod montecarlo;
 pub mod status;
@@ -14,6 +15,7 @@ use rayon::prelude::*;
 use crate::catalogue::{ColumnMeta, Table};
 use crate::physics::estimators::Distance;
 use crate::physics::object::{evaluate, ObjectContext, ObjectInput, ObjectResult};
+pub use error::InputError;
 pub use inputs::{extract, InputColumns};
 pub use status::RowStatus;
 

@@ -10,6 +10,8 @@ use crate::catalogue::units::{parse_unit, Unit};
 use crate::catalogue::Table;
 use crate::physics::cosmology::LengthUnit;
 use crate::physics::estimators::DistanceKind;
+
+use super::error::ColumnError;
 pub use crate::settings::{AngleUnit, ColumnChoice, RedshiftUnit};
 
 /// One resolved column and how it was found.
@@ -342,19 +344,14 @@ fn resolve_redshift_part(f: &mut Finder<'_>, choice: &ColumnChoice) -> Option<Re
     })
 }
 
-fn listing(f: &Finder<'_>) -> String {
-    f.names.join(", ")
-}
-
-fn report(f: &Finder<'_>) -> Result<(), String> {
+fn report(f: &Finder<'_>) -> Result<(), ColumnError> {
     if f.problems.is_empty() {
         Ok(())
     } else {
-        Err(format!(
-            "{}\n  columns in the file: {}",
-            f.problems.join("\n  "),
-            listing(f)
-        ))
+        Err(ColumnError::Problems {
+            problems: f.problems.clone(),
+            columns: f.names.clone(),
+        })
     }
 }
 
@@ -362,11 +359,11 @@ fn report(f: &Finder<'_>) -> Result<(), String> {
 pub fn resolve_redshift_columns(
     table: &Table,
     choice: &ColumnChoice,
-) -> Result<RedshiftColumns, String> {
+) -> Result<RedshiftColumns, ColumnError> {
     let mut f = Finder::new(table);
     let r = resolve_redshift_part(&mut f, choice);
     report(&f)?;
-    r.ok_or_else(|| "the columns could not be resolved".into())
+    r.ok_or(ColumnError::Unresolved("the columns could not be resolved"))
 }
 
 /// What a distance kind's column must hold, for messages.
@@ -429,7 +426,7 @@ pub fn resolve_columns(
     table: &Table,
     choice: &ColumnChoice,
     length_unit: Option<LengthUnit>,
-) -> Result<ColumnPlan, String> {
+) -> Result<ColumnPlan, ColumnError> {
     let mut f = Finder::new(table);
     let sky = resolve_redshift_part(&mut f, choice);
 
@@ -562,15 +559,15 @@ pub fn resolve_columns(
     };
 
     report(&f)?;
-    let sky = sky.ok_or("the columns could not be resolved")?;
+    let sky = sky.ok_or(ColumnError::Unresolved("the columns could not be resolved"))?;
     Ok(ColumnPlan {
         ra: sky.ra,
         dec: sky.dec,
         z: sky.z,
         z_unit: sky.z_unit,
         z_err: sky.z_err,
-        distance: distance.ok_or("no distance column")?,
-        distance_kind: distance_kind.ok_or("no distance kind")?,
+        distance: distance.ok_or(ColumnError::Unresolved("no distance column"))?,
+        distance_kind: distance_kind.ok_or(ColumnError::Unresolved("no distance kind"))?,
         distance_err,
         group_id,
         angle_unit: sky.angle_unit,

@@ -5,6 +5,7 @@
 use thiserror::Error;
 
 use crate::catalogue::CatalogueError;
+use crate::settings::SettingsError;
 
 #[derive(Debug, Error)]
 pub enum PlanError {
@@ -19,12 +20,33 @@ pub enum PlanError {
     /// an existing output without --force).
     #[error("{}", problems.join("\n  "))]
     Files { problems: Vec<String> },
+    /// Columns that cannot be mapped to their roles (every problem at once).
+    #[error(transparent)]
+    Columns(#[from] ColumnError),
+    /// A choice that does not resolve: an unknown preset or apex, an invalid cosmology, a run
+    /// file that does not parse.
+    #[error(transparent)]
+    Resolve(#[from] SettingsError),
     /// The input's record (or another file the plan reads) could not be read.
     #[error(transparent)]
     Catalogue(#[from] CatalogueError),
     /// A setting out of range or inconsistent (cosmology, frames, counts, stage settings).
     #[error("{0}")]
     Settings(String),
+}
+
+/// Why the columns of a table cannot be mapped to their roles (RA, Dec, redshift, distance,
+/// errors, group): every problem found, with the file's columns listed.
+#[derive(Debug, Error)]
+pub enum ColumnError {
+    #[error("{}\n  columns in the file: {}", problems.join("\n  "), columns.join(", "))]
+    Problems {
+        problems: Vec<String>,
+        columns: Vec<String>,
+    },
+    /// A role left without a column although no problem was reported (a defect).
+    #[error("{0}")]
+    Unresolved(&'static str),
 }
 
 impl From<String> for PlanError {

@@ -18,7 +18,7 @@ pub mod velocities;
 pub use columns::{ColumnPlan, Resolved};
 pub use common::Shared;
 pub use correct::{plan_correct, CorrectOrder, CorrectPlan};
-pub use error::PlanError;
+pub use error::{ColumnError, PlanError};
 pub use mock::{plan_field, plan_mock, FieldOrder, FieldPlan, MockOrder, MockOverrides, MockPlan};
 pub use paths::Files;
 pub use run_file::{check_run_file, merge_run_file};

@@ -135,7 +135,8 @@ pub fn check_settings(
         .outliers
         .as_ref()
         .map(OutlierSettings::from_choice)
-        .transpose()?;
+        .transpose()
+        .map_err(|e| super::PlanError::Settings(e.to_string()))?;
     if let Some(b) = &cfg.bulk_flow {
         if let Some(s) = b.sigma_star {
             if !(s.is_finite() && s >= 0.0) {

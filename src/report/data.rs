@@ -4,6 +4,7 @@ use std::collections::BTreeMap;
 
 use polars::prelude::{Column, DataType};
 
+use super::ReportError;
 use super::SkyChoice;
 use crate::catalogue::Table;
 use crate::physics::sky::{galactic_to_supergalactic, Direction, Galactic, Supergalactic};
@@ -38,30 +39,30 @@ pub(crate) struct Sample {
 
 /// Numbers of a column as f64 (NaN where null or not numeric); `None` if there is no such
 /// column.
-pub(crate) fn numbers(table: &Table, name: &str) -> Result<Option<Vec<f64>>, String> {
+pub(crate) fn numbers(table: &Table, name: &str) -> Result<Option<Vec<f64>>, ReportError> {
     let Ok(c) = table.frame.column(name) else {
         return Ok(None);
     };
     let f = c
         .cast(&DataType::Float64)
-        .map_err(|e| format!("column {name}: not numeric ({e})"))?;
+        .map_err(|e| ReportError::column(name, format!("not numeric ({e})")))?;
     let f = f
         .f64()
-        .map_err(|e| format!("column {name}: not numeric ({e})"))?;
+        .map_err(|e| ReportError::column(name, format!("not numeric ({e})")))?;
     Ok(Some(f.iter().map(|v| v.unwrap_or(f64::NAN)).collect()))
 }
 
 /// Text of a column (None where null); `None` if there is no such column.
-pub(crate) fn texts(table: &Table, name: &str) -> Result<Option<Vec<Option<String>>>, String> {
+pub(crate) fn texts(table: &Table, name: &str) -> Result<Option<Vec<Option<String>>>, ReportError> {
     let Ok(c) = table.frame.column(name) else {
         return Ok(None);
     };
     let s = c
         .cast(&DataType::String)
-        .map_err(|e| format!("column {name}: not text ({e})"))?;
+        .map_err(|e| ReportError::column(name, format!("not text ({e})")))?;
     let s = s
         .str()
-        .map_err(|e| format!("column {name}: not text ({e})"))?;
+        .map_err(|e| ReportError::column(name, format!("not text ({e})")))?;
     Ok(Some(
         s.iter().map(|v| v.map(|t| t.trim().to_string())).collect(),
     ))
@@ -69,24 +70,24 @@ pub(crate) fn texts(table: &Table, name: &str) -> Result<Option<Vec<Option<Strin
 
 /// Flags of a column (booleans, or text true/false/T/F/1/0, or numbers ≠ 0); `None` if there
 /// is no such column.
-pub(crate) fn flags(table: &Table, name: &str) -> Result<Option<Vec<bool>>, String> {
+pub(crate) fn flags(table: &Table, name: &str) -> Result<Option<Vec<bool>>, ReportError> {
     let Ok(c) = table.frame.column(name) else {
         return Ok(None);
     };
     Ok(Some(column_flags(c, name)?))
 }
 
-fn column_flags(c: &Column, name: &str) -> Result<Vec<bool>, String> {
+fn column_flags(c: &Column, name: &str) -> Result<Vec<bool>, ReportError> {
     match c.dtype() {
         DataType::Boolean => Ok(c
             .bool()
-            .map_err(|e| format!("column {name}: {e}"))?
+            .map_err(|e| ReportError::column(name, e.to_string()))?
             .iter()
             .map(|b| b.unwrap_or(false))
             .collect()),
         DataType::String => Ok(c
             .str()
-            .map_err(|e| format!("column {name}: {e}"))?
+            .map_err(|e| ReportError::column(name, e.to_string()))?
             .iter()
             .map(|t| {
                 matches!(
@@ -98,9 +99,9 @@ fn column_flags(c: &Column, name: &str) -> Result<Vec<bool>, String> {
         _ => {
             let f = c
                 .cast(&DataType::Float64)
-                .map_err(|e| format!("column {name}: not a flag ({e})"))?;
+                .map_err(|e| ReportError::column(name, format!("not a flag ({e})")))?;
             Ok(f.f64()
-                .map_err(|e| format!("column {name}: not a flag ({e})"))?
+                .map_err(|e| ReportError::column(name, format!("not a flag ({e})")))?
                 .iter()
                 .map(|v| v.is_some_and(|v| v != 0.0))
                 .collect())
@@ -108,9 +109,8 @@ fn column_flags(c: &Column, name: &str) -> Result<Vec<bool>, String> {
     }
 }
 
-fn required(table: &Table, name: &str) -> Result<Vec<f64>, String> {
-    numbers(table, name)?
-        .ok_or_else(|| format!("no column {name}: is this a flowsift output table?"))
+fn required(table: &Table, name: &str) -> Result<Vec<f64>, ReportError> {
+    numbers(table, name)?.ok_or_else(|| ReportError::MissingColumn { name: name.into() })
 }
 
 /// Whether a status value means the row is usable.
@@ -119,14 +119,15 @@ pub(crate) fn is_ok(status: Option<&str>) -> bool {
 }
 
 impl Sample {
-    pub(crate) fn from_table(table: &Table, sky: SkyChoice) -> Result<Sample, String> {
+    pub(crate) fn from_table(table: &Table, sky: SkyChoice) -> Result<Sample, ReportError> {
         let n = table.frame.height();
         let z = required(table, "z_cmb")?;
         let v = required(table, "v_pec")?;
         let v_err = required(table, "v_pec_err")?;
         let d = required(table, "d_c")?;
-        let status = texts(table, "status")?
-            .ok_or_else(|| "no column status: is this a flowsift output table?".to_string())?;
+        let status = texts(table, "status")?.ok_or_else(|| ReportError::MissingColumn {
+            name: "status".into(),
+        })?;
         let mu = numbers(table, "mu")?;
         let mu_err = numbers(table, "mu_err")?;
         let truth = numbers(table, "true_v_pec")?;
@@ -163,7 +164,11 @@ impl Sample {
 
 /// Longitudes and latitudes in the chosen frame: from its own columns, else converted from the
 /// other frame's; NaN where neither is there.
-fn sky_columns(table: &Table, sky: SkyChoice, n: usize) -> Result<(Vec<f64>, Vec<f64>), String> {
+fn sky_columns(
+    table: &Table,
+    sky: SkyChoice,
+    n: usize,
+) -> Result<(Vec<f64>, Vec<f64>), ReportError> {
     let (own, other) = match sky {
         SkyChoice::Galactic => (("glon", "glat"), ("sgl", "sgb")),
         SkyChoice::Supergalactic => (("sgl", "sgb"), ("glon", "glat")),
@@ -207,7 +212,7 @@ pub(crate) fn supergalactic_to_galactic_deg(l: f64, b: f64) -> (f64, f64) {
 }
 
 /// Rows per status value, in order of count (largest first), "ok" first.
-pub(crate) fn status_counts(table: &Table) -> Result<Vec<(String, usize)>, String> {
+pub(crate) fn status_counts(table: &Table) -> Result<Vec<(String, usize)>, ReportError> {
     let mut counts: BTreeMap<String, usize> = BTreeMap::new();
     if let Some(status) = texts(table, "status")? {
         for s in status {
@@ -236,7 +241,7 @@ pub(crate) struct OutlierSummary {
     pub per_combination: Vec<(String, usize)>,
 }
 
-pub(crate) fn outlier_summary(table: &Table) -> Result<OutlierSummary, String> {
+pub(crate) fn outlier_summary(table: &Table) -> Result<OutlierSummary, ReportError> {
     let Some(flag) = flags(table, "outlier")? else {
         return Ok(OutlierSummary::default());
     };

@@ -6,32 +6,35 @@ use std::path::{Path, PathBuf};
 use serde_json::Value;
 
 use super::data::{self, is_ok, numbers, outlier_summary, status_counts};
-use super::Figure;
+use super::{Figure, ReportError};
 use crate::catalogue::Table;
+use crate::flow::bulk_flow_report::BulkFlowReport;
 
 /// Write the run report for `table` (read from `input`) to `out`, atomically: provenance,
 /// settings and conventions, counts per status, outliers per reason, the bulk flow and its ΛCDM
-/// comparison (from `bulkflow`, the `OUTPUT.bulkflow.json` content), and every file of
+/// comparison (from `bulkflow`, the `OUTPUT.bulkflow.json` file as read by
+/// `catalogue::bulk_flow_file::read_bulk_flow`), and every file of
 /// `figures` embedded (PNG as base64 data, SVG inline; a figure written in both formats is
 /// embedded once, as PNG) and linked.
 pub fn write_report(
     table: &Table,
     input: &Path,
     figures: &[PathBuf],
-    bulkflow: Option<&Value>,
+    bulkflow: Option<&BulkFlowReport>,
     out: &Path,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let html = render(table, input, figures, bulkflow, out)?;
-    super::atomic_write(out, html.as_bytes()).map_err(|e| format!("{}: {e}", out.display()))
+    crate::catalogue::atomic::write_bytes(out, html.as_bytes())
+        .map_err(|e| ReportError::output(out, e.into()))
 }
 
 fn render(
     table: &Table,
     input: &Path,
     figures: &[PathBuf],
-    bulkflow: Option<&Value>,
+    bulkflow: Option<&BulkFlowReport>,
     out: &Path,
-) -> Result<String, String> {
+) -> Result<String, ReportError> {
     let mut h = String::with_capacity(1 << 20);
     let name = input
         .file_name()
@@ -308,7 +311,7 @@ fn settings_section(h: &mut String, p: &[(String, String)]) {
     h.push_str("</table></details>\n");
 }
 
-fn rows_section(h: &mut String, table: &Table) -> Result<(), String> {
+fn rows_section(h: &mut String, table: &Table) -> Result<(), ReportError> {
     h.push_str("<h2 id=\"rows\">Rows</h2>\n");
     let counts = status_counts(table)?;
     let total = table.frame.height();
@@ -334,7 +337,7 @@ fn rows_section(h: &mut String, table: &Table) -> Result<(), String> {
         Some(s) => s.iter().map(|v| is_ok(v.as_deref())).collect(),
         None => vec![false; total],
     };
-    let summary = |name: &str, unit: &str| -> Result<Option<String>, String> {
+    let summary = |name: &str, unit: &str| -> Result<Option<String>, ReportError> {
         let Some(v) = numbers(table, name)? else {
             return Ok(None);
         };
@@ -377,7 +380,7 @@ fn rows_section(h: &mut String, table: &Table) -> Result<(), String> {
     Ok(())
 }
 
-fn outliers_section(h: &mut String, table: &Table) -> Result<(), String> {
+fn outliers_section(h: &mut String, table: &Table) -> Result<(), ReportError> {
     h.push_str("<h2 id=\"outliers\">Outliers</h2>\n");
     let s = outlier_summary(table)?;
     if !s.has_column {
@@ -420,48 +423,37 @@ fn outliers_section(h: &mut String, table: &Table) -> Result<(), String> {
     Ok(())
 }
 
-fn vec3(v: Option<&Value>) -> Option<[f64; 3]> {
-    let a = v?.as_array()?;
-    Some([
-        a.first()?.as_f64()?,
-        a.get(1)?.as_f64()?,
-        a.get(2)?.as_f64()?,
-    ])
+fn diagonal(m: &[[f64; 3]; 3]) -> [f64; 3] {
+    [m[0][0], m[1][1], m[2][2]]
 }
 
-fn diag3(v: Option<&Value>) -> Option<[f64; 3]> {
-    let m = v?.as_array()?;
-    let d = |i: usize| m.get(i)?.as_array()?.get(i)?.as_f64();
-    Some([d(0)?, d(1)?, d(2)?])
-}
-
-fn bulkflow_section(h: &mut String, bulk: Option<&Value>) {
+fn bulkflow_section(h: &mut String, bulk: Option<&BulkFlowReport>) {
     let Some(b) = bulk else {
         return;
     };
     h.push_str("<h2 id=\"bulkflow\">Bulk flow</h2>\n");
-    let f = |k: &str| b.get(k).and_then(Value::as_f64);
-    let mut intro = String::new();
-    if let Some(n) = b.get("n_used").and_then(Value::as_u64) {
-        let _ = write!(intro, "Maximum-likelihood fit to {n} objects");
-    } else {
-        intro.push_str("Maximum-likelihood fit");
-    }
-    if let Some(space) = b.get("fit_space").and_then(Value::as_str) {
-        let _ = write!(intro, " in {} space", esc(space));
-    }
-    if let Some(s) = f("sigma_star") {
-        let fitted = b.get("sigma_star_fitted").and_then(Value::as_bool) == Some(true);
+    // serde_json writes a number that is not finite as null: such a number is left out.
+    let finite = |v: f64| v.is_finite().then_some(v);
+    let mut intro = format!(
+        "Maximum-likelihood fit to {} objects in {} space",
+        b.n_used,
+        esc(b.fit_space.name())
+    );
+    if let Some(s) = finite(b.sigma_star) {
         let _ = write!(
             intro,
             ", σ_* = {} km/s ({})",
             fixed(s, 0),
-            if fitted { "fitted" } else { "fixed" }
+            if b.sigma_star_fitted {
+                "fitted"
+            } else {
+                "fixed"
+            }
         );
     }
     let _ = writeln!(h, "<p>{intro}.</p>");
-    if let (Some(a), Some(l), Some(bb)) = (f("amplitude"), f("l"), f("b")) {
-        let err = f("amplitude_err")
+    if let (Some(a), Some(l), Some(bb)) = (finite(b.amplitude), finite(b.l), finite(b.b)) {
+        let err = finite(b.amplitude_err)
             .map(|e| format!(" ± {}", fixed(e, 0)))
             .unwrap_or_default();
         let _ = writeln!(
@@ -472,18 +464,15 @@ fn bulkflow_section(h: &mut String, bulk: Option<&Value>) {
             fixed(bb, 1)
         );
     }
-    let lcdm = b.get("lcdm");
-    let rms = vec3(lcdm.and_then(|l| l.get("lcdm_rms")));
+    let lcdm = b.lcdm.as_ref();
+    let rms = lcdm.map(|l| l.lcdm_rms);
     let table =
         |h: &mut String,
          title: &str,
-         v: Option<[f64; 3]>,
-         cov: Option<[f64; 3]>,
+         v: [f64; 3],
+         variances: [f64; 3],
          axes: [&str; 3],
          rms: Option<[f64; 3]>| {
-            let Some(v) = v else {
-                return;
-            };
             let _ =
                 write!(
             h,
@@ -492,7 +481,7 @@ fn bulkflow_section(h: &mut String, bulk: Option<&Value>) {
             if rms.is_some() { "<th>ΛCDM rms (km/s)</th><th>v / rms</th>" } else { "" }
         );
             for i in 0..3 {
-                let sig = cov.map(|c| c[i].max(0.0).sqrt());
+                let sig = finite(variances[i]).map(|c| c.max(0.0).sqrt());
                 let _ = write!(
                     h,
                     "<tr><td>{}</td><td class=\"n\">{}</td><td class=\"n\">{}</td>",
@@ -515,46 +504,43 @@ fn bulkflow_section(h: &mut String, bulk: Option<&Value>) {
     table(
         h,
         "Galactic Cartesian components",
-        vec3(b.get("v_galactic")),
-        diag3(b.get("cov")),
+        b.v_galactic,
+        diagonal(&b.cov),
         ["x (l = 0°, b = 0°)", "y (l = 90°, b = 0°)", "z (b = 90°)"],
         rms,
     );
-    let sg = b.get("supergalactic");
     table(
         h,
         "Supergalactic Cartesian components",
-        vec3(sg.and_then(|s| s.get("v"))),
-        diag3(sg.and_then(|s| s.get("cov"))),
+        b.supergalactic.v,
+        diagonal(&b.supergalactic.cov),
         ["SGX", "SGY", "SGZ"],
         None,
     );
     if let Some(l) = lcdm {
         h.push_str("<h3>Comparison with ΛCDM</h3><table>");
-        let g = |k: &str| l.get(k).and_then(Value::as_f64);
-        if let (Some(c), Some(dof)) = (g("chi2"), l.get("dof").and_then(Value::as_u64)) {
+        if let Some(c) = finite(l.chi2) {
             let _ = write!(
                 h,
-                "<tr><th>χ² of the flow against measurement + ΛCDM covariance</th><td>{} for {dof} degrees of freedom</td></tr>",
-                fixed(c, 2)
+                "<tr><th>χ² of the flow against measurement + ΛCDM covariance</th><td>{} for {} degrees of freedom</td></tr>",
+                fixed(c, 2),
+                l.dof
             );
         }
-        if let Some(p) = g("probability") {
+        if let Some(p) = finite(l.probability) {
             let _ = write!(
                 h,
                 "<tr><th>probability of a χ² at least this large</th><td>{}</td></tr>",
                 sig(p, 3)
             );
         }
-        for (k, label) in [("power_spectrum", "power spectrum"), ("window", "window")] {
-            if let Some(s) = l.get(k).and_then(Value::as_str) {
-                let _ = write!(h, "<tr><th>{label}</th><td>{}</td></tr>", esc(s));
-            }
+        for (s, label) in [(&l.power_spectrum, "power spectrum"), (&l.window, "window")] {
+            let _ = write!(h, "<tr><th>{label}</th><td>{}</td></tr>", esc(s));
         }
-        if let Some(s8) = g("sigma8") {
+        if let Some(s8) = finite(l.sigma8) {
             let _ = write!(h, "<tr><th>σ8</th><td>{}</td></tr>", number(s8));
         }
-        if let Some(fg) = g("growth_rate") {
+        if let Some(fg) = finite(l.growth_rate) {
             let _ = write!(
                 h,
                 "<tr><th>growth rate f</th><td>{}</td></tr>",
@@ -563,14 +549,12 @@ fn bulkflow_section(h: &mut String, bulk: Option<&Value>) {
         }
         h.push_str("</table>\n");
     }
-    if let Some(c) = b.get("cautions").and_then(Value::as_array) {
-        if !c.is_empty() {
-            h.push_str("<ul class=\"warn\">");
-            for item in c.iter().filter_map(Value::as_str) {
-                let _ = write!(h, "<li>{}</li>", esc(item));
-            }
-            h.push_str("</ul>\n");
+    if !b.cautions.is_empty() {
+        h.push_str("<ul class=\"warn\">");
+        for item in &b.cautions {
+            let _ = write!(h, "<li>{}</li>", esc(item));
         }
+        h.push_str("</ul>\n");
     }
 }
 
@@ -599,7 +583,7 @@ fn href(file: &Path, out: &Path) -> String {
     o
 }
 
-fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<(), String> {
+fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<(), ReportError> {
     if figures.is_empty() {
         return Ok(());
     }
@@ -629,7 +613,7 @@ fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<()
             .unwrap_or("Figure.");
         let _ = write!(h, "<figure id=\"fig-{}\">", esc(&stem));
         if let Some(p) = png {
-            let bytes = std::fs::read(p).map_err(|e| format!("{}: {e}", p.display()))?;
+            let bytes = std::fs::read(p).map_err(|e| ReportError::file(p, e.to_string()))?;
             let _ = write!(
                 h,
                 "<img alt=\"{}\" src=\"data:image/png;base64,{}\">",
@@ -637,10 +621,11 @@ fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<()
                 base64(&bytes)
             );
         } else if let Some(p) = svg {
-            let text = std::fs::read_to_string(p).map_err(|e| format!("{}: {e}", p.display()))?;
+            let text =
+                std::fs::read_to_string(p).map_err(|e| ReportError::file(p, e.to_string()))?;
             let start = text
                 .find("<svg")
-                .ok_or_else(|| format!("{}: not an SVG file", p.display()))?;
+                .ok_or_else(|| ReportError::file(p, "not an SVG file"))?;
             h.push_str(&text[start..]);
         } else {
             h.push_str("<p class=\"note\">(not an image that can be embedded)</p>");

@@ -18,10 +18,11 @@
 //! conventions from the provenance, counts per status, outliers per reason, the bulk flow and
 //! its ΛCDM comparison, and every figure embedded.
 //!
-//! Nothing here prints; errors come back as messages naming what failed.
+//! Nothing here prints; errors come back as a [`ReportError`] naming what failed.
 
 pub mod colour;
 mod data;
+mod error;
 mod figures;
 mod html;
 pub mod projection;
@@ -30,8 +31,10 @@ use std::path::{Path, PathBuf};
 use std::sync::OnceLock;
 
 use crate::catalogue::Table;
+use crate::flow::bulk_flow_report::BulkFlowReport;
 use crate::physics::cosmology::{Cosmology, CosmologyParams};
 
+pub use error::ReportError;
 pub use html::write_report;
 
 /// Which sky coordinates the map uses.
@@ -81,9 +84,10 @@ pub struct PlotOptions {
     pub sky: SkyChoice,
     /// PNG, SVG or both.
     pub format: ImageFormat,
-    /// The bulk-flow result (`OUTPUT.bulkflow.json`), for the direction on the sky map; without
+    /// The bulk-flow result (`OUTPUT.bulkflow.json`, read by
+    /// `catalogue::bulk_flow_file::read_bulk_flow`), for the direction on the sky map; without
     /// it the map says that no bulk flow is marked.
-    pub bulkflow: Option<serde_json::Value>,
+    pub bulkflow: Option<BulkFlowReport>,
     /// Cosmology of the model curve in the Hubble diagram (default flat ΛCDM, H0 = 70, Ω_m = 0.3).
     pub cosmology: CosmologyParams,
     /// Figure size in pixels (SVG: the same size in user units).
@@ -152,9 +156,9 @@ impl Figure {
 }
 
 /// Register the bundled font with plotters, once per process.
-pub(crate) fn register_fonts() -> Result<(), String> {
-    static DONE: OnceLock<Result<(), String>> = OnceLock::new();
-    DONE.get_or_init(|| {
+pub(crate) fn register_fonts() -> Result<(), ReportError> {
+    static LOADED: OnceLock<bool> = OnceLock::new();
+    let loaded = LOADED.get_or_init(|| {
         use plotters::style::FontStyle;
         let faces: [(FontStyle, &'static [u8]); 3] = [
             (FontStyle::Normal, dejavu::sans::regular()),
@@ -162,12 +166,17 @@ pub(crate) fn register_fonts() -> Result<(), String> {
             (FontStyle::Italic, dejavu::sans::oblique()),
         ];
         for (style, bytes) in faces {
-            plotters::style::register_font("sans-serif", style, bytes)
-                .map_err(|_| "the bundled DejaVu Sans font could not be loaded".to_string())?;
+            if plotters::style::register_font("sans-serif", style, bytes).is_err() {
+                return false;
+            }
         }
+        true
+    });
+    if *loaded {
         Ok(())
-    })
-    .clone()
+    } else {
+        Err(ReportError::Font)
+    }
 }
 
 /// Draw every figure of `table` into `out_dir` (created if needed; existing figure files are
@@ -176,19 +185,18 @@ pub fn render_all(
     table: &Table,
     options: &PlotOptions,
     out_dir: &Path,
-) -> Result<Vec<PathBuf>, String> {
+) -> Result<Vec<PathBuf>, ReportError> {
     if options.width < 400 || options.height < 300 {
-        return Err(format!(
-            "figure size {}×{} px is too small (at least 400×300)",
-            options.width, options.height
-        ));
+        return Err(ReportError::FigureSize {
+            width: options.width,
+            height: options.height,
+        });
     }
     register_fonts()?;
     std::fs::create_dir_all(out_dir)
-        .map_err(|e| format!("{}: cannot create the folder: {e}", out_dir.display()))?;
+        .map_err(|e| ReportError::file(out_dir, format!("cannot create the folder: {e}")))?;
     let sample = data::Sample::from_table(table, options.sky)?;
-    let cosmology =
-        Cosmology::new(options.cosmology).map_err(|e| format!("model cosmology: {e}"))?;
+    let cosmology = Cosmology::new(options.cosmology).map_err(ReportError::ModelCosmology)?;
     let context = figures::Context {
         sample: &sample,
         cosmology: &cosmology,
@@ -204,14 +212,9 @@ pub fn render_all(
         for ext in options.format.extensions() {
             let path = out_dir.join(format!("{}.{ext}", figure.stem()));
             figures::write_figure(figure, &context, &path)
-                .map_err(|e| format!("{}: {e}", path.display()))?;
+                .map_err(|e| ReportError::output(&path, e))?;
             written.push(path);
         }
     }
     Ok(written)
-}
-
-/// Write `bytes` to `path` atomically (the catalogue layer's one writer).
-pub(crate) fn atomic_write(path: &Path, bytes: &[u8]) -> Result<(), String> {
-    crate::catalogue::atomic::write_bytes(path, bytes).map_err(|e| e.to_string())
 }

@@ -23,7 +23,7 @@ pub struct HubbleCheck {
     pub within_fraction: f64,
 }
 
-fn flags(table: &Table, name: &str) -> Result<Vec<bool>, String> {
+fn flags(table: &Table, name: &str) -> Result<Vec<bool>, super::RunError> {
     Ok(text_column(table, name)?
         .iter()
         .map(|b| matches!(b.as_deref(), Some("true") | Some("1")))

@@ -22,8 +22,8 @@ use crate::plan::columns::resolve_redshift_columns;
 use crate::plan::CorrectPlan;
 use crate::settings::RedshiftUnit;
 
-use super::cosmology_reaching;
 use super::model::build_model;
+use super::{cosmology_reaching, RunError};
 
 /// What a `correct` run did.
 #[derive(Debug, Clone, Serialize)]
@@ -58,21 +58,24 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
             None,
         )
     };
-    let where_ = |e: String| format!("{}: {e}", plan.input.display());
-    let columns = resolve_redshift_columns(&table, &plan.config().columns).map_err(where_)?;
+    let where_ = |e: RunError| RunError::in_file(&plan.input, e);
+    let columns =
+        resolve_redshift_columns(&table, &plan.config().columns).map_err(|e| where_(e.into()))?;
     let (ra, ra_code) = read_numbers(&table, &columns.ra.column, Reading::Ra(columns.angle_unit))
-        .map_err(where_)?;
+        .map_err(|e| where_(e.into()))?;
     let (dec, dec_code) = read_numbers(
         &table,
         &columns.dec.column,
         Reading::Dec(columns.angle_unit),
     )
-    .map_err(where_)?;
+    .map_err(|e| where_(e.into()))?;
     let (mut z, z_code) =
-        read_numbers(&table, &columns.z.column, Reading::Number).map_err(where_)?;
-    check_redshift_unit(&z, &columns.z.column, columns.z_unit).map_err(where_)?;
+        read_numbers(&table, &columns.z.column, Reading::Number).map_err(|e| where_(e.into()))?;
+    check_redshift_unit(&z, &columns.z.column, columns.z_unit).map_err(|e| where_(e.into()))?;
     let (mut z_err, _) = match &columns.z_err {
-        Some(c) => read_numbers(&table, &c.column, Reading::Number).map_err(where_)?,
+        Some(c) => {
+            read_numbers(&table, &c.column, Reading::Number).map_err(|e| where_(e.into()))?
+        }
         None => (vec![0.0; z.len()].into(), vec![0; z.len()]),
     };
     if columns.z_unit == RedshiftUnit::Cz {

@@ -235,12 +235,12 @@ pub fn run_velocities(
 ) -> Result<RunSummary, RunError> {
     let cfg = plan.config();
     let shared = &plan.shared;
-    let where_ = |e: String| format!("{}: {e}", plan.input.display());
+    let where_ = |e: RunError| RunError::in_file(&plan.input, e);
 
     let (table, source_text, replaced) = read_catalogue(plan)?;
-    let columns =
-        resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit).map_err(where_)?;
-    let mut input = pipeline::extract(&table, &columns).map_err(where_)?;
+    let columns = resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit)
+        .map_err(|e| where_(e.into()))?;
+    let mut input = pipeline::extract(&table, &columns).map_err(|e| where_(e.into()))?;
     // Groups combine the members' own distances: keep them when Malmquist changes them.
     let uncorrected_distance =
         (cfg.groups.is_some() && cfg.malmquist.is_some()).then(|| input.distance.clone());
@@ -379,15 +379,7 @@ pub fn run_velocities(
     }
     let mut bulk_summary = None;
     if let (Some(report), Some(path)) = (bulk, &plan.bulk_flow_output) {
-        let mut value = serde_json::to_value(&report).map_err(|e| e.to_string())?;
-        if let Some(m) = value.as_object_mut() {
-            m.insert(
-                "record".into(),
-                serde_json::to_value(&record).map_err(|e| e.to_string())?,
-            );
-        }
-        crate::catalogue::write_json_atomically(path, &value, plan.force)
-            .map_err(|e| e.to_string())?;
+        crate::catalogue::bulk_flow_file::write_bulk_flow(path, &report, &record, plan.force)?;
         bulk_summary = Some((report, path.clone()));
     }
     let mut export_summary = None;

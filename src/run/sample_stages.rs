@@ -24,6 +24,8 @@ use crate::pipeline::{output_values, Derived, InputColumns, RowStatus, OUTPUT_CO
 use crate::plan::ColumnPlan;
 use crate::settings::{BulkFlowChoice, GroupChoice, MalmquistChoice, MalmquistMethod};
 
+use super::RunError;
+
 /// If `table` is a flowsift output (it has `status` and every derived column), drop the
 /// derived columns so that they are recomputed rather than kept as `<name>_input`.
 /// Returns the dropped names.
@@ -177,7 +179,7 @@ pub fn group_table(
     derived: &Derived,
     choice: &GroupChoice,
     malmquist: Option<&MalmquistChoice>,
-) -> Result<(Table, Groups, Option<String>), String> {
+) -> Result<(Table, Groups, Option<String>), RunError> {
     let key_col = plan.group_id.as_ref().ok_or(
         "groups need a group column: group_id by default, or --group-column / [columns] group_id",
     )?;
@@ -327,7 +329,7 @@ pub fn add_outliers(
     table: &mut Table,
     cosmology: &Cosmology,
     settings: &OutlierSettings,
-) -> Result<OutlierResult, String> {
+) -> Result<OutlierResult, RunError> {
     let sample = FlowSample::from_table(table, false)?;
     let result = flag_outliers(&sample, cosmology, settings)?;
     for name in ["outlier", "outlier_reason"] {
@@ -355,7 +357,7 @@ pub fn bulk_flow_of_table(
     table: &Table,
     cosmology: &Cosmology,
     choice: &BulkFlowChoice,
-) -> Result<BulkFlowReport, String> {
+) -> Result<BulkFlowReport, RunError> {
     let sample = FlowSample::from_table(table, choice.skip_outliers.unwrap_or(true))?;
     let sigma_star = choice
         .sigma_star
@@ -363,9 +365,9 @@ pub fn bulk_flow_of_table(
         .unwrap_or(SigmaStar::Fit);
     if let SigmaStar::Fixed(s) = sigma_star {
         if !(s.is_finite() && s >= 0.0) {
-            return Err(format!(
+            return Err(RunError::Failed(format!(
                 "bulk flow: sigma_star must be non-negative, got {s}"
-            ));
+            )));
         }
     }
     let hook =
@@ -378,17 +380,17 @@ pub fn bulk_flow_of_table(
     } else {
         None
     };
-    bulk_flow(
+    Ok(bulk_flow(
         &sample,
         cosmology,
         choice.space.unwrap_or_default(),
         sigma_star,
         lcdm,
-    )
+    )?)
 }
 
 /// Give each member row the index of its group (`group_index`).
-pub fn add_group_index(table: &mut Table, groups: &Groups) -> Result<(), String> {
+pub fn add_group_index(table: &mut Table, groups: &Groups) -> Result<(), RunError> {
     let idx: Vec<i64> = groups.group_of.iter().map(|x| *x as i64).collect();
     table.frame = table
         .frame

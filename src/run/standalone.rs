@@ -94,15 +94,7 @@ pub fn run_bulkflow(plan: &StagePlan) -> Result<(BulkFlowReport, Vec<String>), s
     let mut record = stage_record(plan, table.frame.height());
     record.settings.bulk_flow = Some(choice.filled());
     if let Some(out) = &plan.output {
-        let mut value = serde_json::to_value(&report).map_err(|e| e.to_string())?;
-        if let Some(m) = value.as_object_mut() {
-            m.insert(
-                "record".into(),
-                serde_json::to_value(&record).map_err(|e| e.to_string())?,
-            );
-        }
-        crate::catalogue::write_json_atomically(out, &value, plan.force)
-            .map_err(|e| e.to_string())?;
+        crate::catalogue::bulk_flow_file::write_bulk_flow(out, &report, &record, plan.force)?;
     }
     Ok((report, record.cautions))
 }

@@ -3,6 +3,8 @@
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
+use super::SettingsError;
+
 use crate::physics::cosmology::{find_preset, Cosmology, CosmologyParams};
 
 /// Cosmology as the user gives it: a preset and/or explicit parameters (explicit win).
@@ -49,8 +51,9 @@ impl CosmologyChoice {
     }
 
     /// Resolve to parameters. A flat model is kept flat when only Ω_m (or Ω_r) changes.
-    pub fn resolve(&self) -> Result<ResolvedCosmology, String> {
-        let preset = find_preset(self.preset.as_deref().unwrap_or("common"))?;
+    pub fn resolve(&self) -> Result<ResolvedCosmology, SettingsError> {
+        let preset = find_preset(self.preset.as_deref().unwrap_or("common"))
+            .map_err(SettingsError::UnknownName)?;
         let base = preset.params;
         let omega_m = self.omega_m.unwrap_or(base.omega_m);
         let omega_r = self.omega_r.unwrap_or(base.omega_r);
@@ -63,7 +66,7 @@ impl CosmologyChoice {
             w0: self.w0.unwrap_or(base.w0),
             wa: self.wa.unwrap_or(base.wa),
         };
-        params.validate().map_err(|e| e.to_string())?;
+        params.validate()?;
         let changed = params != base;
         let source = if changed {
             format!(
@@ -83,16 +86,16 @@ impl CosmologyChoice {
 
 impl ResolvedCosmology {
     /// Build the distance tables and check they reach `z_needed`.
-    pub fn build(&self, z_needed: f64) -> Result<Cosmology, String> {
-        let c = Cosmology::new(self.params).map_err(|e| e.to_string())?;
-        c.ensure_covers(z_needed).map_err(|e| e.to_string())?;
+    pub fn build(&self, z_needed: f64) -> Result<Cosmology, SettingsError> {
+        let c = Cosmology::new(self.params)?;
+        c.ensure_covers(z_needed)?;
         Ok(c)
     }
 }
 
 impl CosmologyChoice {
     /// The choice with every parameter written out as the value used (for records).
-    pub fn filled(&self) -> Result<CosmologyChoice, String> {
+    pub fn filled(&self) -> Result<CosmologyChoice, SettingsError> {
         let r = self.resolve()?;
         Ok(CosmologyChoice {
             preset: Some(self.preset.clone().unwrap_or_else(|| "common".into())),

@@ -4,6 +4,8 @@
 use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
+use super::SettingsError;
+
 use crate::physics::redshift::{Cmb, GalacticRest, LocalGroup, Lsr, RedshiftKind};
 use crate::physics::restframe::{default_apex, find_apex, Apex, Boost, BoostMethod};
 
@@ -56,34 +58,31 @@ impl FrameChoice {
     }
 
     /// Resolve names and numbers into boosts.
-    pub fn resolve(&self) -> Result<ResolvedFrames, String> {
+    pub fn resolve(&self) -> Result<ResolvedFrames, SettingsError> {
         let cmb_apex = match (&self.dipole, &self.apex) {
-            (Some(_), Some(_)) => {
-                return Err("give either a named dipole or a user apex, not both".into())
-            }
+            (Some(_), Some(_)) => return Err(SettingsError::DipoleAndUserApex),
             (_, Some([v, l, b])) => {
-                Apex::user(Cmb::NAME, *v, *l, *b).map_err(|e| format!("user apex: {e}"))?
+                Apex::user(Cmb::NAME, *v, *l, *b).map_err(SettingsError::UserApex)?
             }
-            (Some(name), None) => find_apex(Cmb::NAME, name)?,
+            (Some(name), None) => find_apex(Cmb::NAME, name).map_err(SettingsError::UnknownName)?,
             (None, None) => default_apex(Cmb::NAME),
         };
         let pick = |frame: &str, name: &Option<String>| match name {
-            Some(n) => find_apex(frame, n),
+            Some(n) => find_apex(frame, n).map_err(SettingsError::UnknownName),
             None => Ok(default_apex(frame)),
         };
         let local_group_apex = pick(LocalGroup::NAME, &self.local_group)?;
         let galactic_rest_apex = pick(GalacticRest::NAME, &self.galactic_rest)?;
         let lsr_apex = default_apex(Lsr::NAME);
-        let err = |e: crate::physics::PhysicsError| e.to_string();
         Ok(ResolvedFrames {
-            cmb: Boost::new(&cmb_apex).map_err(err)?,
+            cmb: Boost::new(&cmb_apex)?,
             cmb_apex,
             method: self.boost.unwrap_or_default(),
-            local_group: Boost::new(&local_group_apex).map_err(err)?,
+            local_group: Boost::new(&local_group_apex)?,
             local_group_apex,
-            galactic_rest: Boost::new(&galactic_rest_apex).map_err(err)?,
+            galactic_rest: Boost::new(&galactic_rest_apex)?,
             galactic_rest_apex,
-            lsr: Boost::new(&lsr_apex).map_err(err)?,
+            lsr: Boost::new(&lsr_apex)?,
             lsr_apex,
         })
     }
@@ -91,7 +90,7 @@ impl FrameChoice {
 
 impl FrameChoice {
     /// The choice with every apex named and the boost stated (for records).
-    pub fn filled(&self) -> Result<FrameChoice, String> {
+    pub fn filled(&self) -> Result<FrameChoice, SettingsError> {
         let r = self.resolve()?;
         Ok(FrameChoice {
             dipole: self.apex.is_none().then(|| r.cmb_apex.name.clone()),

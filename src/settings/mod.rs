@@ -5,6 +5,7 @@
 mod columns;
 mod conventions;
 mod cosmology;
+mod error;
 mod example;
 mod frames;
 mod model;
@@ -24,6 +25,7 @@ pub use crate::physics::restframe::BoostMethod;
 pub use columns::{AngleUnit, ColumnChoice, RedshiftUnit};
 pub use conventions::{cautions, ConventionChoice};
 pub use cosmology::{CosmologyChoice, ResolvedCosmology};
+pub use error::SettingsError;
 pub use example::EXAMPLE_CONFIG;
 pub use frames::{FrameChoice, ResolvedFrames};
 pub use model::{InfallChoice, ModelChoice, DEFAULT_SIGMA_V_KM_S};
@@ -106,8 +108,11 @@ pub struct RunConfig {
 
 impl RunConfig {
     /// Parse a run file's text; `origin` names it in messages.
-    pub fn from_toml(text: &str, origin: &str) -> Result<RunConfig, String> {
-        toml::from_str(text).map_err(|e| format!("{origin}: {e}"))
+    pub fn from_toml(text: &str, origin: &str) -> Result<RunConfig, SettingsError> {
+        toml::from_str(text).map_err(|e| SettingsError::RunFile {
+            origin: origin.to_string(),
+            message: e.to_string(),
+        })
     }
 
     /// This file's choices with `flags` on top.

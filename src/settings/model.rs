@@ -4,6 +4,8 @@
 
 use serde::{Deserialize, Serialize};
 
+use super::SettingsError;
+
 use crate::physics::cosmology::LengthUnit;
 use crate::physics::field::{DensityBoundary, FieldAxes};
 
@@ -31,18 +33,22 @@ impl InfallChoice {
     }
 
     /// Parse `NAME,X,Y,Z,DELTA0,R_SCALE`.
-    pub fn parse(s: &str) -> Result<InfallChoice, String> {
+    pub fn parse(s: &str) -> Result<InfallChoice, SettingsError> {
         let p: Vec<&str> = s.split(',').map(str::trim).collect();
         if p.len() != 6 {
-            return Err(format!(
-                "--infall '{s}': expected NAME,X,Y,Z,DELTA0,R_SCALE"
-            ));
+            return Err(SettingsError::Infall {
+                given: s.to_string(),
+                problem: "expected NAME,X,Y,Z,DELTA0,R_SCALE".into(),
+            });
         }
-        let num = |i: usize| -> Result<f64, String> {
+        let num = |i: usize| -> Result<f64, SettingsError> {
             p[i].parse::<f64>()
                 .ok()
                 .filter(|x| x.is_finite())
-                .ok_or_else(|| format!("--infall '{s}': '{}' is not a finite number", p[i]))
+                .ok_or_else(|| SettingsError::Infall {
+                    given: s.to_string(),
+                    problem: format!("'{}' is not a finite number", p[i]),
+                })
         };
         Ok(InfallChoice {
             name: p[0].to_string(),

@@ -8,6 +8,8 @@ use crate::physics::redshift::doppler_redshift;
 use crate::report::colour::{ACCENT, INK};
 use crate::report::data::Row;
 
+use crate::report::ReportError;
+
 use super::axis::{clip_curve, number, Axis};
 use super::layout::{chart, frame, legend, scatter, Scale};
 use super::stats::{quantile, running_medians, sorted};
@@ -16,7 +18,10 @@ use super::{de, model_label, rows_line, Area, Context};
 /// The peculiar velocity whose residual curves the Hubble diagram shows, km/s.
 const GUIDE_VELOCITY: f64 = 500.0;
 
-pub(super) fn hubble<DB: DrawingBackend>(ctx: &Context<'_>, root: &Area<DB>) -> Result<(), String> {
+pub(super) fn hubble<DB: DrawingBackend>(
+    ctx: &Context<'_>,
+    root: &Area<DB>,
+) -> Result<(), ReportError> {
     let sc = Scale::of(ctx);
     let sample = ctx.sample;
     let cosmo = ctx.cosmology;

@@ -6,6 +6,8 @@ use plotters::style::text_anchor::{HPos, Pos, VPos};
 
 use crate::report::colour::{ERRORBAR, GRID, INK, OUTLIER, POINT};
 
+use crate::report::ReportError;
+
 use super::axis::Axis;
 use super::{de, Area, Chart, Context};
 
@@ -40,7 +42,7 @@ pub(super) fn text<DB: DrawingBackend>(
     at: (i32, i32),
     style: &TextStyle<'static>,
     anchor: (HPos, VPos),
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     area.draw(&Text::new(
         s.to_string(),
         at,
@@ -90,7 +92,7 @@ pub(super) fn halo_text<DB: DrawingBackend>(
     at: (i32, i32),
     style: &TextStyle<'static>,
     sc: Scale,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let (w, h) = area.estimate_text_size(s, style).map_err(de)?;
     let pad = sc.px(4.0);
     let (w, h) = (w as i32, h as i32);
@@ -111,7 +113,7 @@ pub(super) fn frame<DB: DrawingBackend>(
     root: &Area<DB>,
     title: &str,
     caption: &[String],
-) -> Result<Area<DB>, String> {
+) -> Result<Area<DB>, ReportError> {
     let sc = Scale::of(ctx);
     let (w, h) = root.dim_in_pixel();
     let title_h = sc.px(66.0);
@@ -161,7 +163,7 @@ pub(super) fn chart<'a, DB: DrawingBackend>(
     y: Axis,
     x_desc: Option<&str>,
     y_desc: &str,
-) -> Result<Chart<'a, DB>, String> {
+) -> Result<Chart<'a, DB>, ReportError> {
     let mut chart = ChartBuilder::on(area)
         .margin_top(sc.upx(12.0))
         .margin_right(sc.upx(40.0))
@@ -207,7 +209,7 @@ pub(super) fn legend<'a, DB: DrawingBackend + 'a>(
     chart: &mut Chart<'a, DB>,
     sc: Scale,
     position: SeriesLabelPosition,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     chart
         .configure_series_labels()
         .position(position)
@@ -234,7 +236,7 @@ pub(super) fn scatter<DB: DrawingBackend>(
     x: Axis,
     y: Axis,
     point_label: Option<&str>,
-) -> Result<usize, String> {
+) -> Result<usize, ReportError> {
     let dot = sc.px(3.4);
     let ring_r = sc.px(6.5);
     let tri = sc.px(7.0);

@@ -13,7 +13,7 @@ use plotters::prelude::*;
 
 use crate::physics::cosmology::Cosmology;
 use crate::report::data::Sample;
-use crate::report::{Figure, PlotOptions};
+use crate::report::{Figure, PlotOptions, ReportError};
 
 use axis::Axis;
 use hubble::hubble;
@@ -41,12 +41,16 @@ pub(crate) struct Context<'a> {
 type Area<DB> = DrawingArea<DB, Shift>;
 type Chart<'a, DB> = ChartContext<'a, DB, Cartesian2d<Axis, Axis>>;
 
-fn de<E: std::fmt::Display>(e: E) -> String {
-    format!("drawing failed: {e}")
+fn de<E: std::fmt::Display>(e: E) -> ReportError {
+    ReportError::Drawing(e.to_string())
 }
 
 /// Write one figure to `path` (the extension chooses PNG or SVG), atomically.
-pub(crate) fn write_figure(figure: Figure, ctx: &Context<'_>, path: &Path) -> Result<(), String> {
+pub(crate) fn write_figure(
+    figure: Figure,
+    ctx: &Context<'_>,
+    path: &Path,
+) -> Result<(), ReportError> {
     let size = (ctx.options.width, ctx.options.height);
     let ext = path
         .extension()
@@ -60,17 +64,19 @@ pub(crate) fn write_figure(figure: Figure, ctx: &Context<'_>, path: &Path) -> Re
                 draw(figure, ctx, &root)?;
                 root.present().map_err(de)?;
             }
-            super::atomic_write(path, text.as_bytes())
+            Ok(crate::catalogue::atomic::write_bytes(
+                path,
+                text.as_bytes(),
+            )?)
         }
         // The PNG encoder writes its file by name: the one atomic writer gives it a fresh
         // temporary path with the destination's extension.
-        "png" => crate::catalogue::atomic::write_via_path(path, |tmp| {
+        "png" => Ok(crate::catalogue::atomic::write_via_path(path, |tmp| {
             let root = BitMapBackend::new(tmp, size).into_drawing_area();
-            draw(figure, ctx, &root)?;
-            root.present().map_err(de)
-        })
-        .map_err(|e| e.to_string()),
-        other => Err(format!("unknown image type .{other} (use .png or .svg)")),
+            draw(figure, ctx, &root).map_err(|e| e.to_string())?;
+            root.present().map_err(|e| de(e).to_string())
+        })?),
+        other => Err(ReportError::ImageType(other.to_string())),
     }
 }
 
@@ -78,7 +84,7 @@ fn draw<DB: DrawingBackend>(
     figure: Figure,
     ctx: &Context<'_>,
     root: &Area<DB>,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     root.fill(&WHITE).map_err(de)?;
     match figure {
         Figure::Hubble => hubble(ctx, root),

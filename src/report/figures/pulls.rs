@@ -4,12 +4,17 @@ use plotters::prelude::*;
 
 use crate::report::colour::{INK, POINT};
 
+use crate::report::ReportError;
+
 use super::axis::{fixed, number, Axis};
 use super::layout::{chart, frame, legend, ring, Scale};
 use super::stats::{quantile, sorted};
 use super::{de, rows_line, Area, Context};
 
-pub(super) fn pulls<DB: DrawingBackend>(ctx: &Context<'_>, root: &Area<DB>) -> Result<(), String> {
+pub(super) fn pulls<DB: DrawingBackend>(
+    ctx: &Context<'_>,
+    root: &Area<DB>,
+) -> Result<(), ReportError> {
     let sc = Scale::of(ctx);
     let sample = ctx.sample;
     let truth = sample.has_truth;

@@ -5,11 +5,14 @@ use plotters::element::DashedPathElement;
 use plotters::prelude::*;
 use plotters::style::text_anchor::{HPos, VPos};
 
+use crate::flow::bulk_flow_report::BulkFlowReport;
 use crate::physics::restframe::default_apex;
 use crate::report::colour::{diverging, GRID, INK, SKY_BACKGROUND};
 use crate::report::data::{galactic_to_supergalactic_deg, supergalactic_to_galactic_deg, Row};
 use crate::report::projection::{mollweide, HALF_HEIGHT, HALF_WIDTH};
 use crate::report::SkyChoice;
+
+use crate::report::ReportError;
 
 use super::axis::{fixed, nice_ceil, number, Axis};
 use super::layout::{frame, halo_text, ring, text, Scale, LABEL_GREY};
@@ -23,29 +26,17 @@ struct Mark {
     label: String,
 }
 
-/// Bulk-flow direction and a description, in the map's frame, from the bulk-flow JSON.
-fn bulk_flow_mark(json: &serde_json::Value, sky: SkyChoice) -> Option<Mark> {
-    let f = |v: &serde_json::Value| v.as_f64();
-    let (l, b) = match (json.get("l").and_then(f), json.get("b").and_then(f)) {
-        (Some(l), Some(b)) => (l, b),
-        _ => {
-            let v = json.get("v_galactic")?.as_array()?;
-            let (x, y, z) = (f(v.first()?)?, f(v.get(1)?)?, f(v.get(2)?)?);
-            let r = (x * x + y * y + z * z).sqrt();
-            if r <= 0.0 {
-                return None;
-            }
-            (
-                y.atan2(x).to_degrees().rem_euclid(360.0),
-                (z / r).asin().to_degrees(),
-            )
-        }
-    };
-    let amplitude = json.get("amplitude").and_then(f);
-    let err = json.get("amplitude_err").and_then(f);
-    let speed = match (amplitude, err) {
-        (Some(a), Some(e)) => format!("{} ± {} km/s ", fixed(a, 0), fixed(e, 0)),
-        (Some(a), None) => format!("{} km/s ", fixed(a, 0)),
+/// Bulk-flow direction and a description, in the map's frame, from the bulk-flow result; none
+/// when its direction is not finite (serde_json writes such a number as null).
+fn bulk_flow_mark(report: &BulkFlowReport, sky: SkyChoice) -> Option<Mark> {
+    let (l, b) = (report.l, report.b);
+    if !(l.is_finite() && b.is_finite()) {
+        return None;
+    }
+    let (amplitude, err) = (report.amplitude, report.amplitude_err);
+    let speed = match (amplitude.is_finite(), err.is_finite()) {
+        (true, true) => format!("{} ± {} km/s ", fixed(amplitude, 0), fixed(err, 0)),
+        (true, false) => format!("{} km/s ", fixed(amplitude, 0)),
         _ => String::new(),
     };
     let (lon, lat) = match sky {
@@ -91,7 +82,7 @@ fn draw_star<DB: DrawingBackend>(
     sc: Scale,
     at: (i32, i32),
     size: f64,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let pts = star(at, size * sc.0, size * 0.42 * sc.0);
     area.draw(&Polygon::new(pts.clone(), RGBColor(255, 200, 30).filled()))
         .map_err(de)?;
@@ -106,7 +97,7 @@ fn draw_dipole<DB: DrawingBackend>(
     sc: Scale,
     at: (i32, i32),
     size: f64,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let r = sc.px(size);
     area.draw(&Circle::new(at, r, WHITE.filled())).map_err(de)?;
     area.draw(&Circle::new(at, r, INK.stroke_width(sc.upx(2.6))))
@@ -126,7 +117,7 @@ pub(super) fn sky_map<DB: DrawingBackend>(
     ctx: &Context<'_>,
     root: &Area<DB>,
     sky: SkyChoice,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let sc = Scale::of(ctx);
     let sample = ctx.sample;
     let names = lon_lat_names(sky);

@@ -6,6 +6,8 @@ use plotters::prelude::*;
 
 use crate::report::colour::{ACCENT, INK, TRUTH};
 
+use crate::report::ReportError;
+
 use super::axis::{clip_curve, Axis};
 use super::layout::{chart, frame, legend, scatter, Scale};
 use super::stats::{quantile, running_medians, sorted};
@@ -14,7 +16,7 @@ use super::{de, rows_line, Area, Context};
 pub(super) fn velocity_distance<DB: DrawingBackend>(
     ctx: &Context<'_>,
     root: &Area<DB>,
-) -> Result<(), String> {
+) -> Result<(), ReportError> {
     let sc = Scale::of(ctx);
     let sample = ctx.sample;
     let points: Vec<(f64, f64, f64, bool)> = sample
