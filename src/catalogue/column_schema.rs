@@ -235,6 +235,16 @@ pub const GROUP_TABLE: [ColumnSpec; 4] = [
     ),
 ];
 
+/// The heliocentric redshift `velocities` and `correct` add when the input's redshift was
+/// in another rest frame (not stripped from an earlier output: a re-run reads it as its
+/// heliocentric input).
+pub const GIVEN_FRAME_Z_HELIO: ColumnSpec = col(
+    "z_helio",
+    NoUnit,
+    "src.redshift",
+    "heliocentric redshift derived from the input's rest frame by the exact inverse boost",
+);
+
 /// Columns `correct` adds.
 pub const CORRECTION: [ColumnSpec; 6] = [
     col(
@@ -283,6 +293,7 @@ pub fn spec(name: &str) -> Option<&'static ColumnSpec> {
         .chain(STAGE.iter())
         .chain(GROUP_TABLE.iter())
         .chain(CORRECTION.iter())
+        .chain(std::iter::once(&GIVEN_FRAME_Z_HELIO))
         .find(|c| c.name == name)
 }
 

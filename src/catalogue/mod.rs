@@ -37,6 +37,9 @@ pub struct Table {
     pub meta: BTreeMap<String, ColumnMeta>,
     /// What reading the file noted for the run's summary (lines skipped, columns widened).
     pub notes: Vec<String>,
+    /// Table-level keywords that state the frames of the columns, as the file gives them
+    /// (FITS `RADESYS`, `EQUINOX`, `SPECSYS`); empty for formats without them.
+    pub keywords: BTreeMap<String, String>,
 }
 
 impl Table {
@@ -46,6 +49,7 @@ impl Table {
             frame,
             meta,
             notes: Vec::new(),
+            keywords: BTreeMap::new(),
         }
     }
 }

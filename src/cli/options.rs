@@ -5,7 +5,7 @@ use clap::{Args, ValueEnum};
 
 use flowsift::settings::{
     AngleUnit, BoostMethod, ColumnChoice, ConventionChoice, CosmologyChoice, DistanceKind,
-    DlConvention, FrameChoice, LengthUnit, RedshiftUnit,
+    DlConvention, FrameChoice, GivenFrame, InputSkyFrame, LengthUnit, RedshiftUnit,
 };
 
 /// Cosmology flags.
@@ -188,12 +188,40 @@ impl ConventionFlags {
 /// redshift are.
 #[derive(Debug, Clone, Default, Args)]
 pub struct SkyRedshiftFlags {
-    /// Right-ascension column (default ra).
-    #[arg(long = "ra-column", value_name = "NAME", help_heading = "Columns")]
+    /// Longitude column: right ascension, l or SGL (default ra, or glon, or sgl).
+    #[arg(
+        long = "ra-column",
+        visible_alias = "lon-column",
+        value_name = "NAME",
+        help_heading = "Columns"
+    )]
     pub ra: Option<String>,
-    /// Declination column (default dec).
-    #[arg(long = "dec-column", value_name = "NAME", help_heading = "Columns")]
+    /// Latitude column: declination, b or SGB (default dec, or glat, or sgb).
+    #[arg(
+        long = "dec-column",
+        visible_alias = "lat-column",
+        value_name = "NAME",
+        help_heading = "Columns"
+    )]
     pub dec: Option<String>,
+    /// Sky frame of the positions: icrs, fk5 (J2000), fk4 (B1950), galactic, supergalactic
+    /// (default: by the columns found).
+    #[arg(
+        long = "sky-frame",
+        value_enum,
+        value_name = "FRAME",
+        help_heading = "Columns"
+    )]
+    pub sky_frame: Option<SkyFrameArg>,
+    /// Rest frame of the redshift column: helio, lsr, gsr, lg or cmb (default: by its name,
+    /// z_cmb → cmb …, else helio).
+    #[arg(
+        long = "z-frame",
+        value_enum,
+        value_name = "FRAME",
+        help_heading = "Columns"
+    )]
+    pub z_frame: Option<ZFrameArg>,
     /// Unit of ra/dec: deg, rad or sexagesimal (default: deg, or sexagesimal for text).
     #[arg(
         long = "angle-unit",
@@ -270,6 +298,26 @@ pub enum KindArg {
     Da,
 }
 
+/// Sky frames of input positions.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum SkyFrameArg {
+    Icrs,
+    Fk5,
+    Fk4,
+    Galactic,
+    Supergalactic,
+}
+
+/// Rest frames of input redshifts.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum ZFrameArg {
+    Helio,
+    Lsr,
+    Gsr,
+    Lg,
+    Cmb,
+}
+
 impl SkyRedshiftFlags {
     /// The flags as a column choice (distance roles left empty).
     pub fn choice(&self) -> ColumnChoice {
@@ -286,6 +334,20 @@ impl SkyRedshiftFlags {
                 AngleArg::Deg => AngleUnit::Deg,
                 AngleArg::Rad => AngleUnit::Rad,
                 AngleArg::Sexagesimal => AngleUnit::Sexagesimal,
+            }),
+            sky_frame: self.sky_frame.map(|f| match f {
+                SkyFrameArg::Icrs => InputSkyFrame::Icrs,
+                SkyFrameArg::Fk5 => InputSkyFrame::Fk5,
+                SkyFrameArg::Fk4 => InputSkyFrame::Fk4,
+                SkyFrameArg::Galactic => InputSkyFrame::Galactic,
+                SkyFrameArg::Supergalactic => InputSkyFrame::Supergalactic,
+            }),
+            z_frame: self.z_frame.map(|f| match f {
+                ZFrameArg::Helio => GivenFrame::Helio,
+                ZFrameArg::Lsr => GivenFrame::Lsr,
+                ZFrameArg::Gsr => GivenFrame::Gsr,
+                ZFrameArg::Lg => GivenFrame::Lg,
+                ZFrameArg::Cmb => GivenFrame::Cmb,
             }),
             ..Default::default()
         }

@@ -335,6 +335,100 @@ pub fn between<A: ObserverRestFrame, B: ObserverRestFrame>(
     to.from_heliocentric(from.to_heliocentric(z, n), n)
 }
 
+/// The rest frame a catalogue gives its redshifts in.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum GivenFrame {
+    /// Heliocentric (barycentric), as measured.
+    #[default]
+    Helio,
+    /// Local standard of rest.
+    Lsr,
+    /// Galactic standard of rest.
+    Gsr,
+    /// Local Group barycentre.
+    Lg,
+    /// CMB rest frame.
+    Cmb,
+}
+
+impl GivenFrame {
+    pub const ALL: [GivenFrame; 5] = [
+        GivenFrame::Helio,
+        GivenFrame::Lsr,
+        GivenFrame::Gsr,
+        GivenFrame::Lg,
+        GivenFrame::Cmb,
+    ];
+
+    /// Stable name, as in flags and outputs.
+    pub fn name(self) -> &'static str {
+        match self {
+            GivenFrame::Helio => "helio",
+            GivenFrame::Lsr => "lsr",
+            GivenFrame::Gsr => "gsr",
+            GivenFrame::Lg => "lg",
+            GivenFrame::Cmb => "cmb",
+        }
+    }
+
+    /// The frame a redshift column's name says, by its last word (`z_cmb`, `cz_lg`,
+    /// `Vcmb`, `z_helio` …); `None` when the name says none.
+    pub fn from_column_name(name: &str) -> Option<GivenFrame> {
+        let lower = name.to_ascii_lowercase();
+        let word = lower
+            .rsplit(|c: char| !c.is_ascii_alphanumeric())
+            .next()
+            .unwrap_or("");
+        GivenFrame::ALL
+            .into_iter()
+            .find(|f| {
+                let n = f.name();
+                word == n
+                    || ((word.starts_with('z') || word.starts_with("cz") || word.starts_with('v'))
+                        && word.ends_with(n)
+                        && word.len() <= n.len() + 2)
+            })
+            .or_else(|| (word == "heliocentric" || word == "hel").then_some(GivenFrame::Helio))
+    }
+}
+
+/// The observer boosts of a run, one per frame a catalogue may give redshifts in.
+#[derive(Debug, Clone, Copy)]
+pub struct ObserverBoosts<'a> {
+    pub lsr: &'a Boost<Lsr>,
+    pub galactic_rest: &'a Boost<GalacticRest>,
+    pub local_group: &'a Boost<LocalGroup>,
+    pub cmb: &'a Boost<Cmb>,
+}
+
+/// The heliocentric redshift of a source whose redshift in `frame` is `z`, seen in
+/// direction `n`: the exact inverse boost of that frame's apex, 1 + z_⊙ = (1 + z_F)·γ(1 −
+/// β·n̂) (special-relativistic Doppler shift of a moving observer; e.g. Rybicki & Lightman
+/// 1979, "Radiative Processes in Astrophysics", §4.8 — reference from memory). Also the
+/// factor (1 + z_⊙)/(1 + z_F), which carries a redshift error across.
+pub fn heliocentric_of(
+    frame: GivenFrame,
+    z: f64,
+    n: &Direction<Galactic>,
+    boosts: &ObserverBoosts<'_>,
+) -> Result<(Redshift<Heliocentric>, f64), PhysicsError> {
+    let helio = match frame {
+        GivenFrame::Helio => Redshift::<Heliocentric>::new(z)?,
+        GivenFrame::Lsr => boosts.lsr.to_heliocentric(Redshift::new(z)?, n),
+        GivenFrame::Gsr => boosts.galactic_rest.to_heliocentric(Redshift::new(z)?, n),
+        GivenFrame::Lg => boosts.local_group.to_heliocentric(Redshift::new(z)?, n),
+        GivenFrame::Cmb => boosts.cmb.to_heliocentric(Redshift::new(z)?, n),
+    };
+    if helio.value().is_nan() || helio.value() <= -1.0 {
+        return Err(PhysicsError::NotPositive {
+            quantity: "1 + heliocentric redshift",
+            value: helio.one_plus(),
+        });
+    }
+    Ok((helio, helio.one_plus() / (1.0 + z)))
+}
+
 /// The legacy additive correction c z_F = c z_⊙ + v cos θ, kept only so that older
 /// catalogues can be reproduced. It omits the (1 + z) factor and all O(β²) terms.
 pub fn legacy_additive<F: ObserverRestFrame>(
@@ -353,6 +447,67 @@ pub fn apex_direction(apex: &Apex) -> Direction<Galactic> {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// For every frame a catalogue may give: heliocentric → frame by the forward boost, then
+    /// back by [`heliocentric_of`], returns z_helio to 1e-12 (the two are exact inverses:
+    /// 1 + z_F = (1 + z_⊙)/[γ(1 − β·n̂)]); the error factor is (1 + z_⊙)/(1 + z_F).
+    #[test]
+    fn given_frames_round_trip_to_heliocentric() {
+        let lsr = Boost::<Lsr>::new(&default_apex(Lsr::NAME)).unwrap();
+        let gsr = Boost::<GalacticRest>::new(&default_apex(GalacticRest::NAME)).unwrap();
+        let lg = Boost::<LocalGroup>::new(&default_apex(LocalGroup::NAME)).unwrap();
+        let cmb = Boost::<Cmb>::new(&default_apex(Cmb::NAME)).unwrap();
+        let boosts = ObserverBoosts {
+            lsr: &lsr,
+            galactic_rest: &gsr,
+            local_group: &lg,
+            cmb: &cmb,
+        };
+        for (k, z) in [0.0005, 0.003, 0.02, 0.1, 1.0, 3.0].into_iter().enumerate() {
+            for j in 0..12 {
+                let n = Direction::<Galactic>::from_lon_lat_deg(
+                    30.0 * j as f64 + 7.0 * k as f64,
+                    -80.0 + 14.0 * j as f64,
+                )
+                .unwrap();
+                let h = Redshift::<Heliocentric>::new(z).unwrap();
+                let given = [
+                    (GivenFrame::Helio, z),
+                    (GivenFrame::Lsr, lsr.from_heliocentric(h, &n).value()),
+                    (GivenFrame::Gsr, gsr.from_heliocentric(h, &n).value()),
+                    (GivenFrame::Lg, lg.from_heliocentric(h, &n).value()),
+                    (GivenFrame::Cmb, cmb.from_heliocentric(h, &n).value()),
+                ];
+                for (frame, z_f) in given {
+                    let (back, factor) = heliocentric_of(frame, z_f, &n, &boosts).unwrap();
+                    assert!(
+                        (back.value() - z).abs() < 1e-12,
+                        "{frame:?} z = {z}: {} vs {z}",
+                        back.value()
+                    );
+                    assert!(((1.0 + z) / (1.0 + z_f) - factor).abs() < 1e-14);
+                }
+            }
+        }
+    }
+
+    /// Column names that say a rest frame.
+    #[test]
+    fn given_frame_from_column_names() {
+        for (name, frame) in [
+            ("z_cmb", Some(GivenFrame::Cmb)),
+            ("cz_cmb", Some(GivenFrame::Cmb)),
+            ("Vcmb", Some(GivenFrame::Cmb)),
+            ("z_lg", Some(GivenFrame::Lg)),
+            ("cz_gsr", Some(GivenFrame::Gsr)),
+            ("z_lsr", Some(GivenFrame::Lsr)),
+            ("z_helio", Some(GivenFrame::Helio)),
+            ("z", None),
+            ("redshift", None),
+        ] {
+            assert_eq!(GivenFrame::from_column_name(name), frame, "{name}");
+        }
+    }
 
     /// Source: Planck Collaboration I (2020), A&A 641, A1 — the default CMB apex.
     #[test]

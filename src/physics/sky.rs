@@ -1,5 +1,6 @@
-//! Sky frames: ICRS equatorial, Galactic and supergalactic directions, the rotations between
-//! them, angular separations, supergalactic Cartesian positions and sexagesimal parsing.
+//! Sky frames: ICRS, FK5 (J2000) and FK4 (B1950) equatorial, Galactic and supergalactic
+//! directions, the transformations between them, angular separations, supergalactic
+//! Cartesian positions and sexagesimal parsing.
 //!
 //! A [`Direction`] is a unit vector tagged with its sky frame, so an ICRS vector cannot be
 //! handed to code that expects a Galactic one. A [`Rotation`] names both ends and can be
@@ -13,6 +14,15 @@ use nalgebra::{Matrix3, Vector3};
 use super::constants::DEG;
 use super::PhysicsError;
 
+mod fk_systems;
+mod input_frame;
+
+pub use fk_systems::{
+    fk4_e_terms_b1950, fk4_to_icrs, icrs_to_fk4, icrs_to_fk5, ABERRATION_CONSTANT_ARCSEC,
+    FK5_BIAS_DALPHA0_MAS, FK5_BIAS_ETA0_MAS, FK5_BIAS_XI0_MAS, JD_B1950,
+};
+pub use input_frame::InputSkyFrame;
+
 /// A celestial coordinate system whose basis vectors are fixed on the sky.
 pub trait SkyFrame: Copy + fmt::Debug + Default + Send + Sync + 'static {
     /// Short name used in messages and provenance.
@@ -22,6 +32,15 @@ pub trait SkyFrame: Copy + fmt::Debug + Default + Send + Sync + 'static {
 /// ICRS (J2000-aligned equatorial) frame: longitude = right ascension, latitude = declination.
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct Icrs;
+/// FK5 equatorial frame: mean equator and equinox of J2000.0 (the FK5 catalogue frame,
+/// a rotation of the ICRS by the frame bias; see [`icrs_to_fk5`]).
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Fk5;
+/// FK4 equatorial frame: mean equator and equinox of B1950.0 with the E-terms of aberration
+/// included, as catalogue places of the IAU 1976 system, for epoch B1950.0. Not a rotation of
+/// the ICRS: convert with [`fk4_to_icrs`] and [`icrs_to_fk4`].
+#[derive(Debug, Clone, Copy, Default, PartialEq)]
+pub struct Fk4;
 /// IAU Galactic coordinates (l, b).
 #[derive(Debug, Clone, Copy, Default, PartialEq)]
 pub struct Galactic;
@@ -31,6 +50,12 @@ pub struct Supergalactic;
 
 impl SkyFrame for Icrs {
     const NAME: &'static str = "icrs";
+}
+impl SkyFrame for Fk5 {
+    const NAME: &'static str = "fk5";
+}
+impl SkyFrame for Fk4 {
+    const NAME: &'static str = "fk4";
 }
 impl SkyFrame for Galactic {
     const NAME: &'static str = "galactic";
@@ -98,9 +123,11 @@ impl<F: SkyFrame> Direction<F> {
         Ok(Self::from_vector_unchecked(v / n))
     }
 
-    /// Longitude in [0°, 360°) and latitude in [-90°, 90°], degrees.
+    /// Longitude in [0°, 360°) and latitude in [-90°, 90°], degrees. The latitude is
+    /// atan2(z, √(x² + y²)), accurate to rounding at the poles too (asin z loses half the
+    /// digits there: ~1e-8 rad at the pole itself).
     pub fn lon_lat_deg(&self) -> (f64, f64) {
-        let lat = self.v.z.clamp(-1.0, 1.0).asin() / DEG;
+        let lat = self.v.z.atan2(self.v.x.hypot(self.v.y)) / DEG;
         let mut lon = self.v.y.atan2(self.v.x) / DEG;
         if lon < 0.0 {
             lon += 360.0;
@@ -148,6 +175,14 @@ impl<A: SkyFrame, B: SkyFrame> Rotation<A, B> {
     fn from_axes(x: Vector3<f64>, y: Vector3<f64>, z: Vector3<f64>) -> Self {
         Self {
             m: Matrix3::from_rows(&[x.transpose(), y.transpose(), z.transpose()]),
+            frames: PhantomData,
+        }
+    }
+
+    /// A rotation from its matrix (rows = `B`'s axes in `A`), known to be orthonormal.
+    fn from_matrix(m: Matrix3<f64>) -> Self {
+        Self {
+            m,
             frames: PhantomData,
         }
     }

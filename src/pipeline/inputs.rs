@@ -38,6 +38,22 @@ pub(crate) enum Reading {
     Number,
     Ra(Option<AngleUnit>),
     Dec(Option<AngleUnit>),
+    /// A longitude in degrees (Galactic, supergalactic): sexagesimal text is degrees, not
+    /// hours.
+    LonDeg(Option<AngleUnit>),
+}
+
+/// How a longitude column in `frame` is read: a right ascension (text in hours) in the
+/// equatorial frames, degrees otherwise.
+pub(crate) fn longitude_reading(
+    frame: crate::physics::sky::InputSkyFrame,
+    unit: Option<AngleUnit>,
+) -> Reading {
+    if frame.is_equatorial() {
+        Reading::Ra(unit)
+    } else {
+        Reading::LonDeg(unit)
+    }
 }
 
 /// Read a column as numbers: numeric types are cast, text is parsed entry by entry. Returns
@@ -59,6 +75,7 @@ pub(crate) fn read_numbers<'a>(
         how,
         Reading::Ra(Some(AngleUnit::Rad | AngleUnit::Sexagesimal))
             | Reading::Dec(Some(AngleUnit::Rad | AngleUnit::Sexagesimal))
+            | Reading::LonDeg(Some(AngleUnit::Rad | AngleUnit::Sexagesimal))
     );
     if canonical && col.dtype() == &DataType::Float64 && col.null_count() == 0 {
         if let Ok(values) = col
@@ -85,7 +102,8 @@ pub(crate) fn read_numbers<'a>(
                             Reading::Ra(Some(AngleUnit::Rad)) => {
                                 t.parse::<f64>().ok().map(|x| x / DEG)
                             }
-                            Reading::Dec(Some(AngleUnit::Rad)) => {
+                            Reading::Dec(Some(AngleUnit::Rad))
+                            | Reading::LonDeg(Some(AngleUnit::Rad)) => {
                                 t.parse::<f64>().ok().map(|x| x / DEG)
                             }
                             // Decimal degrees or sexagesimal; range errors are left to the
@@ -97,7 +115,9 @@ pub(crate) fn read_numbers<'a>(
                                 }) if reason.contains("[0, 360]") => t.parse::<f64>().ok(),
                                 Err(_) => None,
                             },
-                            Reading::Dec(_) => match parse_dec_deg(t) {
+                            // Degrees, decimal or sexagesimal; the latitude range is the
+                            // physics' to check, so a longitude passes.
+                            Reading::Dec(_) | Reading::LonDeg(_) => match parse_dec_deg(t) {
                                 Ok(x) => Some(x),
                                 Err(crate::physics::PhysicsError::LatitudeOutOfRange {
                                     value,
@@ -116,7 +136,8 @@ pub(crate) fn read_numbers<'a>(
         }
         dt if dt.is_primitive_numeric() => {
             if let Reading::Ra(Some(AngleUnit::Sexagesimal))
-            | Reading::Dec(Some(AngleUnit::Sexagesimal)) = how
+            | Reading::Dec(Some(AngleUnit::Sexagesimal))
+            | Reading::LonDeg(Some(AngleUnit::Sexagesimal)) = how
             {
                 return Err(InputError::NumbersGivenAsSexagesimal {
                     name: name.to_string(),
@@ -127,7 +148,9 @@ pub(crate) fn read_numbers<'a>(
                 .map_err(|e| InputError::column(name, e))?;
             let ca = f.f64().map_err(|e| InputError::column(name, e))?;
             let scale = match how {
-                Reading::Ra(Some(AngleUnit::Rad)) | Reading::Dec(Some(AngleUnit::Rad)) => 1.0 / DEG,
+                Reading::Ra(Some(AngleUnit::Rad))
+                | Reading::Dec(Some(AngleUnit::Rad))
+                | Reading::LonDeg(Some(AngleUnit::Rad)) => 1.0 / DEG,
                 _ => 1.0,
             };
             for (i, v) in ca.iter().enumerate() {
@@ -204,7 +227,13 @@ pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'
     let ((ra, dec), ((z, dist), (z_err, dist_err))) = rayon::join(
         || {
             rayon::join(
-                || read_numbers(table, &plan.ra.column, Reading::Ra(plan.angle_unit)),
+                || {
+                    read_numbers(
+                        table,
+                        &plan.ra.column,
+                        longitude_reading(plan.sky_frame, plan.angle_unit),
+                    )
+                },
                 || read_numbers(table, &plan.dec.column, Reading::Dec(plan.angle_unit)),
             )
         },

@@ -3,6 +3,7 @@
 //! slice of every output column, so no per-row allocation happens in the hot loop.
 
 mod error;
+pub mod given_frames;
 pub mod inputs;
 pub mod montecarlo;
 pub mod status;

@@ -12,7 +12,7 @@ use crate::physics::cosmology::LengthUnit;
 use crate::physics::estimators::DistanceKind;
 
 use super::error::ColumnError;
-pub use crate::settings::{AngleUnit, ColumnChoice, RedshiftUnit};
+pub use crate::settings::{AngleUnit, ColumnChoice, GivenFrame, InputSkyFrame, RedshiftUnit};
 
 /// One resolved column and how it was found.
 #[derive(Debug, Clone, PartialEq, Serialize)]
@@ -36,6 +36,10 @@ pub struct ColumnPlan {
     /// None: decide per column (text → sexagesimal, numbers → degrees).
     pub angle_unit: Option<AngleUnit>,
     pub length_unit: LengthUnit,
+    /// The sky frame of `ra`/`dec` (longitude and latitude in it).
+    pub sky_frame: InputSkyFrame,
+    /// The rest frame of the redshift column.
+    pub z_frame: GivenFrame,
 }
 
 impl ColumnPlan {
@@ -54,6 +58,8 @@ impl ColumnPlan {
             distance_err: name(&self.distance_err),
             group_id: name(&self.group_id),
             angle_unit: self.angle_unit,
+            sky_frame: Some(self.sky_frame),
+            z_frame: Some(self.z_frame),
         }
     }
 
@@ -88,10 +94,21 @@ impl ColumnPlan {
             Some(u) => format!(", {u:?}").to_lowercase(),
             None => String::new(),
         };
-        add("ra", &Some(self.ra.clone()), angle.clone());
-        add("dec", &Some(self.dec.clone()), angle);
+        let [lon, lat] = match self.sky_frame {
+            InputSkyFrame::Icrs => ["ra", "dec"],
+            InputSkyFrame::Fk5 => ["ra (fk5)", "dec (fk5)"],
+            InputSkyFrame::Fk4 => ["ra (fk4)", "dec (fk4)"],
+            InputSkyFrame::Galactic => ["l", "b"],
+            InputSkyFrame::Supergalactic => ["sgl", "sgb"],
+        };
+        add(lon, &Some(self.ra.clone()), angle.clone());
+        add(lat, &Some(self.dec.clone()), angle);
+        let z_role = match self.z_frame {
+            GivenFrame::Helio => "z_helio".to_string(),
+            other => format!("z ({})", other.name()),
+        };
         add(
-            "z_helio",
+            &z_role,
             &Some(self.z.clone()),
             format!(
                 ", as {}",
@@ -274,18 +291,220 @@ pub struct RedshiftColumns {
     pub z_err: Option<Resolved>,
     /// None: decide per column (text → sexagesimal, numbers → degrees).
     pub angle_unit: Option<AngleUnit>,
+    pub sky_frame: InputSkyFrame,
+    pub z_frame: GivenFrame,
+}
+
+/// The default redshift column names of a rest frame: `z_<frame>`, `cz_<frame>`.
+fn z_defaults(frame: GivenFrame) -> [String; 2] {
+    [
+        format!("z_{}", frame.name()),
+        format!("cz_{}", frame.name()),
+    ]
+}
+
+/// Default (longitude, latitude) column names and UCD words of a sky frame (the UCD1+
+/// `pos.eq`, `pos.galactic`, `pos.supergalactic` words).
+fn sky_defaults(frame: InputSkyFrame) -> ([&'static str; 2], [&'static str; 2]) {
+    match frame {
+        InputSkyFrame::Icrs | InputSkyFrame::Fk5 | InputSkyFrame::Fk4 => {
+            (["ra", "dec"], ["pos.eq.ra", "pos.eq.dec"])
+        }
+        InputSkyFrame::Galactic => (["glon", "glat"], ["pos.galactic.lon", "pos.galactic.lat"]),
+        InputSkyFrame::Supergalactic => (
+            ["sgl", "sgb"],
+            ["pos.supergalactic.lon", "pos.supergalactic.lat"],
+        ),
+    }
+}
+
+/// The sky frame: the flag; else the first frame whose default longitude and latitude
+/// columns (or UCDs) are both in the file, ICRS first; else ICRS. An equatorial frame is the
+/// one the file's `RADESYS`/`EQUINOX` keywords state, when they do.
+fn sky_frame_of(f: &mut Finder<'_>, choice: &ColumnChoice) -> InputSkyFrame {
+    if let Some(frame) = choice.sky_frame {
+        return frame;
+    }
+    let by_columns = if choice.ra.is_some() || choice.dec.is_some() {
+        InputSkyFrame::Icrs
+    } else {
+        [
+            InputSkyFrame::Icrs,
+            InputSkyFrame::Galactic,
+            InputSkyFrame::Supergalactic,
+        ]
+        .into_iter()
+        .find(|frame| {
+            let (names, ucds) = sky_defaults(*frame);
+            (0..2).all(|k| {
+                f.by_default(&[names[k]]).is_some()
+                    || f.by_ucd(&|w: &[String]| w.iter().any(|x| x == ucds[k]))
+                        .is_some()
+            })
+        })
+        .unwrap_or_default()
+    };
+    if !by_columns.is_equatorial() {
+        return by_columns;
+    }
+    match equatorial_frame_stated(&f.table.keywords) {
+        Ok(Some(frame)) => frame,
+        Ok(None) => by_columns,
+        Err(why) => {
+            f.problems.push(why);
+            by_columns
+        }
+    }
+}
+
+/// The equatorial frame a FITS header states: `RADESYS` ICRS, FK5 or FK4, with an `EQUINOX`
+/// that fits it (2000 for FK5, 1950 for FK4); with `EQUINOX` alone, FK4 before 1984 and FK5
+/// from then (FITS Standard 4.0 §8.1, the default for a missing RADESYS; from memory).
+fn equatorial_frame_stated(
+    keywords: &std::collections::BTreeMap<String, String>,
+) -> Result<Option<InputSkyFrame>, String> {
+    let system = keywords
+        .get("RADESYS")
+        .map(|v| v.trim().to_ascii_uppercase());
+    let equinox_text = keywords.get("EQUINOX").map(|v| v.trim().to_string());
+    let equinox = match &equinox_text {
+        None => None,
+        Some(t) => Some(
+            t.trim_start_matches(['J', 'B', 'j', 'b'])
+                .parse::<f64>()
+                .map_err(|_| format!("the header keyword EQUINOX = '{t}' is not a year"))?,
+        ),
+    };
+    let refuse = |what: String| {
+        Err(format!(
+            "{what}: flowsift converts ICRS, FK5 J2000 and FK4 B1950 positions; give \
+             --sky-frame to say which the columns hold"
+        ))
+    };
+    let frame = match system.as_deref() {
+        None => match equinox {
+            None => return Ok(None),
+            Some(e) if e < 1984.0 => InputSkyFrame::Fk4,
+            Some(_) => InputSkyFrame::Fk5,
+        },
+        Some("ICRS") => return Ok(Some(InputSkyFrame::Icrs)),
+        Some("FK5") => InputSkyFrame::Fk5,
+        Some("FK4") => InputSkyFrame::Fk4,
+        Some(other) => return refuse(format!("the header states RADESYS = '{other}'")),
+    };
+    let wanted = if frame == InputSkyFrame::Fk5 {
+        2000.0
+    } else {
+        1950.0
+    };
+    match equinox {
+        Some(e) if (e - wanted).abs() > 1e-6 => refuse(format!(
+            "the header states {} with EQUINOX = {e}",
+            frame.name().to_ascii_uppercase()
+        )),
+        _ => Ok(Some(frame)),
+    }
+}
+
+/// The rest frame a FITS header's `SPECSYS` states (Greisen et al. 2006, A&A 446, 747,
+/// Table 7 of the spectral-coordinate paper; values from memory). Barycentric is taken as
+/// heliocentric: the two differ by the Sun's motion about the barycentre, ~0.01 km/s.
+fn rest_frame_stated(
+    keywords: &std::collections::BTreeMap<String, String>,
+) -> Result<Option<GivenFrame>, String> {
+    let Some(v) = keywords.get("SPECSYS") else {
+        return Ok(None);
+    };
+    Ok(Some(match v.trim().to_ascii_uppercase().as_str() {
+        "HELIOCEN" | "BARYCENT" => GivenFrame::Helio,
+        "LSRK" => GivenFrame::Lsr,
+        "GALACTOC" => GivenFrame::Gsr,
+        "LOCALGRP" => GivenFrame::Lg,
+        "CMBDIPOL" => GivenFrame::Cmb,
+        other => {
+            return Err(format!(
+                "the header states SPECSYS = '{other}': flowsift takes redshifts in the \
+                 HELIOCEN/BARYCENT, LSRK, GALACTOC, LOCALGRP or CMBDIPOL frames; give \
+                 --z-frame to say which the column is in"
+            ))
+        }
+    }))
+}
+
+/// All default redshift column names, frame by frame (heliocentric first).
+fn all_z_defaults() -> Vec<String> {
+    [
+        GivenFrame::Helio,
+        GivenFrame::Cmb,
+        GivenFrame::Lg,
+        GivenFrame::Gsr,
+        GivenFrame::Lsr,
+    ]
+    .into_iter()
+    .flat_map(z_defaults)
+    .collect()
+}
+
+/// The redshift's rest frame: the flag; else what the column's name says and what the
+/// header's `SPECSYS` says (a conflict between the two is reported); else heliocentric.
+fn z_frame_of(f: &mut Finder<'_>, choice: &ColumnChoice, z: Option<&Resolved>) -> GivenFrame {
+    if let Some(frame) = choice.z_frame {
+        return frame;
+    }
+    let by_name = z.and_then(|r| GivenFrame::from_column_name(&r.column));
+    let by_header = match rest_frame_stated(&f.table.keywords) {
+        Ok(v) => v,
+        Err(why) => {
+            f.problems.push(why);
+            None
+        }
+    };
+    match (by_name, by_header) {
+        (Some(a), Some(b)) if a != b => {
+            f.problems.push(format!(
+                "the redshift column '{}' is named for the {} frame but the header's SPECSYS \
+                 says {}; give --z-frame to say which",
+                z.map(|r| r.column.as_str()).unwrap_or_default(),
+                a.name(),
+                b.name()
+            ));
+            a
+        }
+        (Some(a), _) => a,
+        (None, Some(b)) => b,
+        (None, None) => GivenFrame::Helio,
+    }
 }
 
 fn resolve_redshift_part(f: &mut Finder<'_>, choice: &ColumnChoice) -> Option<RedshiftColumns> {
-    let ra = f.required("right-ascension", &choice.ra, &["ra"], &|w| {
-        w.iter().any(|x| x == "pos.eq.ra")
+    let sky_frame = sky_frame_of(f, choice);
+    let (lon_names, lon_ucds) = sky_defaults(sky_frame);
+    let [lon_role, lat_role] = if sky_frame.is_equatorial() {
+        ["right-ascension", "declination"]
+    } else {
+        ["longitude", "latitude"]
+    };
+    let ra = f.required(lon_role, &choice.ra, &[lon_names[0]], &|w| {
+        w.iter().any(|x| x == lon_ucds[0])
     });
-    let dec = f.required("declination", &choice.dec, &["dec"], &|w| {
-        w.iter().any(|x| x == "pos.eq.dec")
+    let dec = f.required(lat_role, &choice.dec, &[lon_names[1]], &|w| {
+        w.iter().any(|x| x == lon_ucds[1])
     });
-    let z = f.required("redshift", &choice.z, &["z_helio", "cz_helio"], &|w| {
+    let z_all = all_z_defaults();
+    let z_all: Vec<&str> = match choice.z_frame {
+        // A frame given: its names only.
+        Some(frame) => z_all
+            .iter()
+            .map(String::as_str)
+            .filter(|n| z_defaults(frame).iter().any(|d| d == n))
+            .collect(),
+        None => z_all.iter().map(String::as_str).collect(),
+    };
+    let z = f.required("redshift", &choice.z, &z_all, &|w| {
         w.iter().any(|x| x == "src.redshift") && !is_error(w)
     });
+    let z_frame = z_frame_of(f, choice, z.as_ref());
+    let z_names = z_defaults(z_frame);
 
     // Redshift unit: the flag, checked against the unit card; else the card; else the name.
     let z_card = z.as_ref().and_then(|r| unit_of(f.table, &r.column));
@@ -299,7 +518,7 @@ fn resolve_redshift_part(f: &mut Finder<'_>, choice: &ColumnChoice) -> Option<Re
         }
         (Some(u), ..) => *u,
         (None, _, Some(Unit::KmPerS)) => RedshiftUnit::Cz,
-        (None, Some(r), _) if r.column.eq_ignore_ascii_case("cz_helio") => RedshiftUnit::Cz,
+        (None, Some(r), _) if r.column.eq_ignore_ascii_case(&z_names[1]) => RedshiftUnit::Cz,
         _ => RedshiftUnit::Z,
     };
     let z_err_defaults: Vec<String> = match &z {
@@ -341,6 +560,8 @@ fn resolve_redshift_part(f: &mut Finder<'_>, choice: &ColumnChoice) -> Option<Re
         z_unit,
         z_err,
         angle_unit,
+        sky_frame,
+        z_frame,
     })
 }
 
@@ -572,5 +793,7 @@ pub fn resolve_columns(
         group_id,
         angle_unit: sky.angle_unit,
         length_unit,
+        sky_frame: sky.sky_frame,
+        z_frame: sky.z_frame,
     })
 }

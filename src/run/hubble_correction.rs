@@ -17,7 +17,8 @@ use crate::physics::field::FieldAxes;
 use crate::physics::redshift::{Heliocentric, Redshift};
 use crate::physics::restframe::{legacy_additive, BoostMethod};
 use crate::physics::sky::{Direction, Icrs, SkyRotations};
-use crate::pipeline::inputs::{check_redshift_unit, read_numbers, Reading};
+use crate::pipeline::inputs::{check_redshift_unit, longitude_reading, read_numbers, Reading};
+use crate::pipeline::RowStatus;
 use crate::plan::columns::resolve_redshift_columns;
 use crate::plan::CorrectPlan;
 use crate::settings::RedshiftUnit;
@@ -61,9 +62,13 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
     let where_ = |e: RunError| RunError::in_file(&plan.input, e);
     let columns =
         resolve_redshift_columns(&table, &plan.config().columns).map_err(|e| where_(e.into()))?;
-    let (ra, ra_code) = read_numbers(&table, &columns.ra.column, Reading::Ra(columns.angle_unit))
-        .map_err(|e| where_(e.into()))?;
-    let (dec, dec_code) = read_numbers(
+    let (mut ra, ra_code) = read_numbers(
+        &table,
+        &columns.ra.column,
+        longitude_reading(columns.sky_frame, columns.angle_unit),
+    )
+    .map_err(|e| where_(e.into()))?;
+    let (mut dec, dec_code) = read_numbers(
         &table,
         &columns.dec.column,
         Reading::Dec(columns.angle_unit),
@@ -82,10 +87,39 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
         z.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
         z_err.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
     }
+    // A row whose position or redshift is missing or unreadable is `bad_input`.
+    let mut status: Vec<u8> = (0..z.len())
+        .map(|i| {
+            if ra_code[i] != 0 || dec_code[i] != 0 {
+                RowStatus::MissingPosition as u8
+            } else if z_code[i] != 0 {
+                RowStatus::MissingRedshift as u8
+            } else {
+                RowStatus::Ok as u8
+            }
+        })
+        .collect();
+    let (given_z_helio, frame_notes) = super::given_frames::to_icrs_and_heliocentric(
+        super::given_frames::GivenColumns {
+            lon: ra.to_mut(),
+            lat: dec.to_mut(),
+            z: z.to_mut(),
+            z_err: z_err.to_mut(),
+            status: &mut status,
+        },
+        super::given_frames::GivenIn {
+            sky_frame: columns.sky_frame,
+            z_frame: columns.z_frame,
+            z_column: &columns.z.column,
+        },
+        shared,
+    )
+    .map_err(where_)?;
     let z_top = z
         .iter()
-        .copied()
-        .filter(|x| x.is_finite())
+        .zip(&status)
+        .filter(|(x, s)| x.is_finite() && **s == RowStatus::Ok as u8)
+        .map(|(x, _)| *x)
         .fold(0.0, f64::max);
     let cosmology = cosmology_reaching(resolved.params, z_top)?;
     let convention = shared.convention;
@@ -121,7 +155,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
     let results: Vec<Option<crate::flow::line_of_sight::Correction>> = (0..n)
         .into_par_iter()
         .map(|i| {
-            if ra_code[i] != 0 || dec_code[i] != 0 || z_code[i] != 0 {
+            if status[i] != RowStatus::Ok as u8 {
                 return None;
             }
             let icrs = Direction::<Icrs>::from_lon_lat_deg(ra[i], dec[i]).ok()?;
@@ -182,6 +216,18 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
         cols.push(Column::new(name.into(), values));
         meta.insert(name.into(), meta_of(name, model_unit.label()));
     }
+    if let Some(z_helio) = given_z_helio {
+        // The input gave another frame: the heliocentric redshift derived from it.
+        if frame.column("z_helio").is_ok() {
+            frame = frame.drop("z_helio").map_err(|e| e.to_string())?;
+        }
+        let values: Vec<Option<f64>> = z_helio
+            .iter()
+            .map(|z| Some(*z).filter(|z| z.is_finite()))
+            .collect();
+        cols.push(Column::new("z_helio".into(), values));
+        meta.insert("z_helio".into(), meta_of("z_helio", ""));
+    }
     if frame.column("field_flag").is_ok() {
         frame = frame.drop("field_flag").map_err(|e| e.to_string())?;
     }
@@ -191,6 +237,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
     let out = Table::new(frame, meta);
     let mut cautions = shared.cautions();
     cautions.extend(table.notes.iter().cloned());
+    cautions.extend(frame_notes);
     cautions.extend(crate::catalogue::atomic::leftovers_note(&plan.output));
     cautions.extend(crate::catalogue::left_out_note(&plan.output, &out));
     cautions.extend([
@@ -213,8 +260,18 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
         z_unit: Some(columns.z_unit),
         z_err: columns.z_err.as_ref().map(|r| r.column.clone()),
         angle_unit: columns.angle_unit,
+        sky_frame: Some(columns.sky_frame),
+        z_frame: Some(columns.z_frame),
         ..Default::default()
     };
+    record.details.insert(
+        "frames".into(),
+        super::given_frames::frames_detail(super::given_frames::GivenIn {
+            sky_frame: columns.sky_frame,
+            z_frame: columns.z_frame,
+            z_column: &columns.z.column,
+        }),
+    );
     record
         .details
         .insert("model".into(), model_description.clone());

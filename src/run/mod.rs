@@ -9,6 +9,7 @@ pub mod distances;
 pub mod error;
 pub mod galaxy;
 pub mod generate;
+pub mod given_frames;
 pub mod hubble_correction;
 pub mod model;
 pub mod sample_stages;
@@ -223,6 +224,14 @@ fn velocity_record(
         ..e.filled()
     });
     r.column_sources = columns.sources();
+    r.details.insert(
+        "frames".into(),
+        given_frames::frames_detail(given_frames::GivenIn {
+            sky_frame: columns.sky_frame,
+            z_frame: columns.z_frame,
+            z_column: &columns.z.column,
+        }),
+    );
     r.rows = Some(rows);
     r.cautions = cautions.to_vec();
     r
@@ -241,6 +250,21 @@ pub fn run_velocities(
     let columns = resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit)
         .map_err(|e| where_(e.into()))?;
     let mut input = pipeline::extract(&table, &columns).map_err(|e| where_(e.into()))?;
+    let (given_z_helio, frame_notes) = given_frames::to_icrs_and_heliocentric(
+        given_frames::GivenColumns {
+            lon: input.ra_deg.to_mut(),
+            lat: input.dec_deg.to_mut(),
+            z: input.z_helio.to_mut(),
+            z_err: input.z_err.to_mut(),
+            status: &mut input.status,
+        },
+        given_frames::GivenIn {
+            sky_frame: columns.sky_frame,
+            z_frame: columns.z_frame,
+            z_column: &columns.z.column,
+        },
+        shared,
+    )?;
     // Groups combine the members' own distances: keep them when Malmquist changes them.
     let uncorrected_distance =
         (cfg.groups.is_some() && cfg.malmquist.is_some()).then(|| input.distance.clone());
@@ -248,12 +272,16 @@ pub fn run_velocities(
     let ctx = object_context(shared, &cosmology, columns.length_unit);
     let mut notes = shared.cautions();
     notes.extend(table.notes.iter().cloned());
+    notes.extend(frame_notes);
     notes.extend(crate::catalogue::atomic::leftovers_note(&plan.output));
     if !replaced.is_empty() {
         notes.push("The input is a flowsift output: its derived columns were recomputed.".into());
     }
 
     let mut extra: Vec<(String, Vec<f64>, ColumnMeta)> = vec![];
+    if let Some(z) = given_z_helio {
+        extra.push(("z_helio".into(), z, meta_of("z_helio", "")));
+    }
     if let Some(m) = &cfg.malmquist {
         let (f, corrected, note) = sample_stages::apply_malmquist(&mut input, m, &ctx)?;
         notes.push(note);

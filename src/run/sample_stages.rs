@@ -46,12 +46,21 @@ pub fn strip_earlier_run(table: Table) -> (Table, Vec<String>) {
         mut frame,
         mut meta,
         notes,
+        keywords,
     } = table;
     for n in &drop {
         frame = frame.drop(n).expect("present");
         meta.remove(n);
     }
-    (Table { frame, meta, notes }, drop)
+    (
+        Table {
+            frame,
+            meta,
+            notes,
+            keywords,
+        },
+        drop,
+    )
 }
 
 fn read_profile(path: &Path) -> Result<RadialProfile, String> {

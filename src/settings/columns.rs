@@ -4,6 +4,7 @@ use schemars::JsonSchema;
 use serde::{Deserialize, Serialize};
 
 use crate::physics::estimators::DistanceKind;
+use crate::physics::sky::InputSkyFrame;
 
 /// Redshift column unit.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
@@ -49,6 +50,12 @@ pub struct ColumnChoice {
     pub group_id: Option<String>,
     /// Unit of ra/dec (default: degrees, or sexagesimal for text columns, or TUNIT).
     pub angle_unit: Option<AngleUnit>,
+    /// Sky frame of the position columns (default: by the columns found: `ra`/`dec` ICRS,
+    /// `glon`/`glat` Galactic, `sgl`/`sgb` supergalactic).
+    pub sky_frame: Option<InputSkyFrame>,
+    /// Rest frame of the redshift column (default: by its name, `z_cmb` → cmb …, else
+    /// heliocentric).
+    pub z_frame: Option<crate::physics::restframe::GivenFrame>,
 }
 
 impl ColumnChoice {
@@ -64,6 +71,8 @@ impl ColumnChoice {
             distance_err: o.distance_err.clone().or_else(|| self.distance_err.clone()),
             group_id: o.group_id.clone().or_else(|| self.group_id.clone()),
             angle_unit: o.angle_unit.or(self.angle_unit),
+            sky_frame: o.sky_frame.or(self.sky_frame),
+            z_frame: o.z_frame.or(self.z_frame),
         }
     }
 }

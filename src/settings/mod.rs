@@ -22,6 +22,8 @@ pub use crate::physics::estimators::{DistanceKind, DlConvention};
 pub use crate::physics::field::{DensityBoundary, FieldAxes};
 pub use crate::physics::restframe::apex_table;
 pub use crate::physics::restframe::BoostMethod;
+pub use crate::physics::restframe::GivenFrame;
+pub use crate::physics::sky::InputSkyFrame;
 pub use columns::{AngleUnit, ColumnChoice, RedshiftUnit};
 pub use conventions::{cautions, ConventionChoice};
 pub use cosmology::{CosmologyChoice, ResolvedCosmology};

@@ -12,6 +12,10 @@ committed):
     /tmp/fixenv/bin/pip install astropy==8.0.2 numpy==2.4.6 scipy==1.17.1 pyerfa==2.0.1.5
     /tmp/fixenv/bin/python tests/reference/make_fixtures.py
 
+To write only some fixtures, name them (file names as listed below):
+
+    /tmp/fixenv/bin/python tests/reference/make_fixtures.py sky_frames_fk.csv
+
 The script refuses to run (exit status 2, with a message) when the installed
 versions differ from the pinned ones below, because the fixtures are only
 reproducible bit-for-bit with the same library versions.  It is deterministic:
@@ -22,6 +26,8 @@ header line, then comma-separated rows; floats are written with '%.17g' so they
 round-trip exactly to IEEE doubles):
 
     sky_frames.csv       ICRS -> Galactic and Supergalactic (astropy SkyCoord)
+    sky_frames_fk.csv    ICRS <-> FK5 (J2000) and FK4 (B1950, E-terms,
+                         obstime B1950) both ways (astropy SkyCoord)
     sky_separations.csv  great-circle separations (astropy SkyCoord.separation)
     sexagesimal.csv      sexagesimal strings parsed by astropy Angle
     distances.csv        FLRW distances for 7 models (astropy.cosmology)
@@ -123,7 +129,7 @@ from pathlib import Path  # noqa: E402
 import numpy as np  # noqa: E402
 import astropy.units as u  # noqa: E402
 from astropy import constants as const  # noqa: E402
-from astropy.coordinates import Angle, CartesianRepresentation, SkyCoord  # noqa: E402
+from astropy.coordinates import FK4, FK5, Angle, CartesianRepresentation, SkyCoord  # noqa: E402
 from astropy.cosmology import (  # noqa: E402
     FlatLambdaCDM,
     Flatw0waCDM,
@@ -325,6 +331,92 @@ def make_sky_separations():
         "small separations with an absolute tolerance (e.g. 1e-12 deg), not a relative one.",
     ]
     write_csv("sky_separations.csv", comments, ["ra1", "dec1", "ra2", "dec2", "sep_deg"], rows)
+
+
+def make_sky_frames_fk():
+    """ICRS <-> FK5 (J2000) and FK4 (B1950 with E-terms, obstime B1950), both ways."""
+    rng = rng_for(7)
+    fk5 = FK5(equinox="J2000")
+    fk4 = FK4(equinox="B1950", obstime="B1950")
+    special = [
+        (0.0, 90.0),
+        (0.0, -90.0),
+        (123.0, 89.9999),
+        (301.0, -89.9999),
+        (0.0, 0.0),
+        (0.0, 45.0),
+        (0.0, -30.0),
+        (1e-7, 10.0),
+        (359.9999999, -10.0),
+        (359.99999999, 60.0),
+        (90.0, 0.0),
+        (180.0, 0.0),
+        (270.0, 0.0),
+    ]
+    n_random = 200
+    blocks = []
+    for origin, n_extra in [("icrs", n_random), ("fk5", 50), ("fk4", 50)]:
+        ra_r, dec_r = random_sky(rng, n_extra)
+        lon = np.concatenate([[p[0] for p in special], ra_r])
+        lat = np.concatenate([[p[1] for p in special], dec_r])
+        if origin == "icrs":
+            c = icrs(lon, lat)
+        elif origin == "fk5":
+            c = SkyCoord(ra=lon * u.deg, dec=lat * u.deg, frame=fk5)
+        else:
+            c = SkyCoord(ra=lon * u.deg, dec=lat * u.deg, frame=fk4)
+        i = c.transform_to("icrs")
+        f5 = c.transform_to(fk5)
+        f4 = c.transform_to(fk4)
+        # The input columns are written as given (not as astropy re-wraps them).
+        cols = {
+            "icrs": (i.ra.deg, i.dec.deg),
+            "fk5": (f5.ra.deg, f5.dec.deg),
+            "fk4": (f4.ra.deg, f4.dec.deg),
+        }
+        cols[origin] = (lon, lat)
+        for k in range(len(lon)):
+            blocks.append(
+                (origin, cols["icrs"][0][k], cols["icrs"][1][k], cols["fk5"][0][k], cols["fk5"][1][k],
+                 cols["fk4"][0][k], cols["fk4"][1][k])
+            )
+    m_i5 = effective_matrix("icrs", fk5)
+    from astropy.coordinates.builtin_frames.fk4 import fk4_e_terms
+    from astropy.coordinates.builtin_frames.utils import EQUINOX_B1950
+
+    e_terms = [float(x) for x in fk4_e_terms(EQUINOX_B1950)]
+    # astropy's direct FK4 -> FK5 result against its FK4 -> ICRS -> FK5 result, same inputs.
+    fk4_rows = [b for b in blocks if b[0] == "fk4"]
+    c4 = SkyCoord(ra=[b[5] for b in fk4_rows] * u.deg, dec=[b[6] for b in fk4_rows] * u.deg, frame=fk4)
+    path_uas = c4.transform_to(fk5).separation(c4.transform_to("icrs").transform_to(fk5)).to_value(u.uas).max()
+    comments = [
+        "ICRS <-> FK5 and FK4 by astropy SkyCoord.transform_to. All angles in degrees.",
+        "  FK5: FK5(equinox='J2000'), the mean equator and equinox of J2000.0.",
+        "  FK4: FK4(equinox='B1950', obstime='B1950'), B1950.0 equatorial including the E-terms of",
+        "  aberration, for objects without proper motion observed at B1950.",
+        "origin: which pair of columns is the INPUT of the row (written exactly as given to astropy);",
+        "  the other two pairs are astropy's transformation of it. Block 'icrs': "
+        f"{len(special)} special points then {n_random} random;",
+        f"  blocks 'fk5' and 'fk4': the same {len(special)} special points then 50 random, each as",
+        "  FK5 or FK4 input. Special points: celestial poles, 1e-4 deg from them, ra = 0, ra just above",
+        "  0 and just below 360, equator points. Random points are uniform on the sphere. Near a pole",
+        "  the longitude is ill-conditioned: compare unit vectors.",
+        "astropy 8.0.2's chain: ICRS -> FK5 J2000 by the frame-bias matrix of USNO Circular 179",
+        "  (eta0 = -19.9 mas, xi0 = 9.1 mas, da0 = -22.9 mas; read from astropy source);",
+        "  FK5 J2000 <-> FK4NoETerms B1950 by the matrix of Murray (1989) A&A 218, 325 eq. 28 plus the",
+        "  eq. 29 correction times the obstime (Julian centuries from 1950; ~ -2.1e-6 at B1950);",
+        "  FK4NoETerms <-> FK4 by the E-terms of aberration at equinox B1950.",
+        "Effective ICRS->FK5 matrix (rows; v_fk5 = M v_icrs), read off astropy by transforming basis vectors:",
+    ]
+    comments += ["  " + " ".join("%.17g" % x for x in row) for row in m_i5]
+    comments.append("E-terms vector at B1950 (astropy fk4_e_terms, radians): " + " ".join("%.17g" % x for x in e_terms))
+    comments += [
+        "In block 'fk4' the fk5 columns are astropy's direct FK4 -> FK5 result; it differs from",
+        f"astropy's FK4 -> ICRS -> FK5 result for the same inputs by up to {path_uas:.1f} micro-arcsec",
+        "(the icrs columns are the FK4 -> ICRS result).",
+    ]
+    cols = ["origin", "ra", "dec", "fk5_ra", "fk5_dec", "fk4_ra", "fk4_dec"]
+    write_csv("sky_frames_fk.csv", comments, cols, blocks)
 
 
 def make_sexagesimal():
@@ -646,18 +738,37 @@ def make_galaxy_pv():
 
 
 def main():
-    bias_mas = make_sky_frames()
-    make_sky_separations()
-    make_sexagesimal()
-    notes = make_distances()
-    cmb_diff = make_cmb_frame()
-    rejected, max_dz, max_dv = make_galaxy_pv()
-    print(f"frame-bias effect on Galactic coordinates: up to {bias_mas:.1f} mas")
-    print("distance cross-checks:")
-    for n in notes:
-        print(n)
-    print(f"cmb_frame: max |z_cmb_if_cmb_frame_angle - z_cmb| = {cmb_diff:.3g}")
-    print(f"galaxy_pv: {rejected} redraws; max |dz_cos| = {max_dz:.2e}; max |dv| = {max_dv:.2e} km/s")
+    wanted = set(sys.argv[1:])
+    known = {"sky_frames.csv", "sky_frames_fk.csv", "sky_separations.csv", "sexagesimal.csv",
+             "distances.csv", "cmb_frame.csv", "galaxy_pv.csv"}
+    unknown = wanted - known
+    if unknown:
+        sys.stderr.write(f"make_fixtures.py: unknown fixture(s) {sorted(unknown)}; known: {sorted(known)}\n")
+        sys.exit(2)
+
+    def want(name):
+        return not wanted or name in wanted
+
+    if want("sky_frames.csv"):
+        bias_mas = make_sky_frames()
+        print(f"frame-bias effect on Galactic coordinates: up to {bias_mas:.1f} mas")
+    if want("sky_frames_fk.csv"):
+        make_sky_frames_fk()
+    if want("sky_separations.csv"):
+        make_sky_separations()
+    if want("sexagesimal.csv"):
+        make_sexagesimal()
+    if want("distances.csv"):
+        notes = make_distances()
+        print("distance cross-checks:")
+        for n in notes:
+            print(n)
+    if want("cmb_frame.csv"):
+        cmb_diff = make_cmb_frame()
+        print(f"cmb_frame: max |z_cmb_if_cmb_frame_angle - z_cmb| = {cmb_diff:.3g}")
+    if want("galaxy_pv.csv"):
+        rejected, max_dz, max_dv = make_galaxy_pv()
+        print(f"galaxy_pv: {rejected} redraws; max |dz_cos| = {max_dz:.2e}; max |dv| = {max_dv:.2e} km/s")
 
 
 if __name__ == "__main__":

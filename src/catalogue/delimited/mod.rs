@@ -133,6 +133,7 @@ fn read(
             frame,
             meta: Default::default(),
             notes,
+            keywords: Default::default(),
         },
         source,
     ))

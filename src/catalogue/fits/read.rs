@@ -207,6 +207,9 @@ enum ReadBuffer {
     Empty,
 }
 
+/// Table-level keywords kept in [`Table::keywords`].
+const FRAME_KEYWORDS: [&str; 3] = ["RADESYS", "EQUINOX", "SPECSYS"];
+
 pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Table, String> {
     let here = hdu.label();
     let (ncols, nrows) = table_shape(file)
@@ -526,6 +529,17 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
     let frame = DataFrame::new(nrows, frame_columns)
         .map_err(|e| format!("{here}: cannot assemble the table: {e}"))?;
     let mut table = Table::new(frame, meta);
+    // The frames the header states for the whole table (FITS Standard 4.0 §8: RADESYS and
+    // EQUINOX for equatorial coordinates; Greisen et al. 2006, A&A 446, 747, SPECSYS for the
+    // rest frame of spectral coordinates such as redshift).
+    for k in FRAME_KEYWORDS {
+        if let Some(v) = key(k)?
+            .map(|v| v.trim().to_string())
+            .filter(|v| !v.is_empty())
+        {
+            table.keywords.insert(k.to_string(), v);
+        }
+    }
     if !left_out.is_empty() {
         table.notes.push(format!(
             "{here}: columns flowsift cannot read (it reads one number, flag or text per \
