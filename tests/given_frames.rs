@@ -242,6 +242,12 @@ fn correct_honours_galactic_positions_and_cmb_frame_redshifts() {
     for (i, (x, r)) in column(&outs[1], "z_helio").iter().zip(&rows).enumerate() {
         assert!((x - r.f("z_helio")).abs() < 1e-9, "row {i}: z_helio {x}");
     }
+    // Both outputs carry the CMB-frame redshift the correction started from: astropy's.
+    for out in &outs {
+        for (i, (x, r)) in column(out, "z_cmb").iter().zip(&rows).enumerate() {
+            assert!((x - r.f("z_cmb")).abs() < 1e-9, "row {i}: z_cmb {x}");
+        }
+    }
 }
 
 /// Galactic longitudes given as sexagesimal text are degrees, not hours of right ascension.

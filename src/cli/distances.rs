@@ -8,7 +8,9 @@ use flowsift::plan::Shared;
 use flowsift::run::distances::distance_table;
 use flowsift::settings::RunConfig;
 
-use super::options::{ConventionFlags, CosmologyFlags};
+use flowsift::settings::{ConventionChoice, LengthUnit};
+
+use super::options::{CosmologyFlags, LengthUnitArg};
 
 /// Distances at a list of redshifts.
 #[derive(Debug, Args)]
@@ -25,8 +27,11 @@ pub struct DistancesArgs {
     pub z: Vec<f64>,
     #[command(flatten)]
     pub cosmology: CosmologyFlags,
-    #[command(flatten)]
-    pub conventions: ConventionFlags,
+    /// Unit of the distances printed: mpc (default) or mpc-over-h (h⁻¹ Mpc). (The
+    /// luminosity-distance conventions concern peculiar velocities, not these FLRW
+    /// distances, so `distances` has none.)
+    #[arg(long = "length-unit", value_enum, value_name = "UNIT")]
+    pub length_unit: Option<LengthUnitArg>,
     /// Print a JSON array instead of a table.
     #[arg(long)]
     pub json: bool,
@@ -36,7 +41,13 @@ pub fn run(a: DistancesArgs) -> anyhow::Result<()> {
     if a.z.is_empty() {
         return Err(anyhow!("give at least one redshift with --z"));
     }
-    let conventions = a.conventions.choice();
+    let conventions = ConventionChoice {
+        length_unit: a.length_unit.map(|u| match u {
+            LengthUnitArg::Mpc => LengthUnit::Mpc,
+            LengthUnitArg::MpcOverH => LengthUnit::MpcOverH,
+        }),
+        ..Default::default()
+    };
     let shared = Shared::resolve(
         None,
         None,
@@ -76,8 +87,9 @@ pub fn run(a: DistancesArgs) -> anyhow::Result<()> {
         );
     }
     println!(
-        "note: {} (Ω_k = {:.3e}); μ uses D_L in Mpc whatever the length unit.",
-        shared.cosmology.source, shared.cosmology.omega_k
+        "note: {} (Ω_k = {}); μ uses D_L in Mpc whatever the length unit.",
+        shared.cosmology.source,
+        flowsift::settings::short_number(shared.cosmology.omega_k)
     );
     Ok(())
 }

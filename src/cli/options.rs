@@ -81,7 +81,7 @@ impl CosmologyFlags {
 /// Rest-frame flags.
 #[derive(Debug, Clone, Default, Args)]
 pub struct FrameFlags {
-    /// Named CMB dipole: planck2018 (default) or cobe-firas. See `flowsift frames`.
+    /// Named CMB dipole: planck2018 (default), planck2013 or cobe-firas. See `flowsift frames`.
     #[arg(
         long,
         value_name = "NAME",

@@ -96,8 +96,9 @@ pub fn outliers(a: OutliersArgs) -> anyhow::Result<()> {
     let (r, rows, notes) = run_outliers(&plan).map_err(|e| anyhow!(e))?;
     let (per, total) = r.counts();
     println!(
-        "outliers: {total} of {rows} rows flagged (residual loop: {} iterations)",
-        r.iterations
+        "outliers: {total} of {rows} rows flagged (residual loop: {} iteration{})",
+        r.iterations,
+        if r.iterations == 1 { "" } else { "s" }
     );
     for (name, n) in per {
         println!("  {name:<14} {n:>8}");

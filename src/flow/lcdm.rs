@@ -2,6 +2,7 @@
 
 use crate::physics::cosmology::Cosmology;
 use crate::physics::dipole_likelihood::BulkFlowFit;
+use crate::settings::short_number;
 
 use super::bulk_flow_report::LcdmComparison;
 use super::FlowError;
@@ -82,7 +83,12 @@ pub fn lcdm_comparison(
         ),
         power_spectrum: format!(
             "Eisenstein & Hu (1998) with baryon wiggles, h = {}, Ω_m = {}, Ω_b = {}, n_s = {}, σ8 = {}; f = Ω_m^γ (Linder 2005) = {:.4}",
-            params.h, params.omega_m, params.omega_b, params.n_s, params.sigma8, f
+            short_number(params.h),
+            short_number(params.omega_m),
+            short_number(params.omega_b),
+            short_number(params.n_s),
+            short_number(params.sigma8),
+            f
         ),
     })
 }

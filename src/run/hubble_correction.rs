@@ -152,7 +152,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
         convention,
     };
     let n = z.len();
-    let results: Vec<Option<crate::flow::line_of_sight::Correction>> = (0..n)
+    let results: Vec<Option<(crate::flow::line_of_sight::Correction, f64)>> = (0..n)
         .into_par_iter()
         .map(|i| {
             if status[i] != RowStatus::Ok as u8 {
@@ -186,17 +186,17 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
                 },
                 sigma_v: model.sigma_v,
             };
-            Some(correct_object(&cosmology, &los, &settings))
+            Some((correct_object(&cosmology, &los, &settings), z_cmb.value()))
         })
         .collect();
     let flags: Vec<&str> = results
         .iter()
-        .map(|r| r.map(|c| c.flag.name()).unwrap_or("bad_input"))
+        .map(|r| r.map(|(c, _)| c.flag.name()).unwrap_or("bad_input"))
         .collect();
     let col = |f: fn(&crate::flow::line_of_sight::Correction) -> f64| -> Vec<Option<f64>> {
         results
             .iter()
-            .map(|r| r.as_ref().map(f).filter(|v| v.is_finite()))
+            .map(|r| r.as_ref().map(|(c, _)| f(c)).filter(|v| v.is_finite()))
             .collect()
     };
     let new = [
@@ -216,6 +216,31 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
         cols.push(Column::new(name.into(), values));
         meta.insert(name.into(), meta_of(name, model_unit.label()));
     }
+    // The CMB-frame redshift the correction started from; an input column of that name is
+    // kept as `z_cmb_input`.
+    let mut z_cmb_note = None;
+    if frame.column("z_cmb").is_ok() {
+        if frame.column("z_cmb_input").is_ok() {
+            frame = frame.drop("z_cmb").map_err(|e| e.to_string())?;
+            z_cmb_note = Some(
+                "The input's z_cmb column was replaced (z_cmb_input, from an earlier run, is kept).",
+            );
+        } else {
+            frame
+                .rename("z_cmb", "z_cmb_input".into())
+                .map_err(|e| e.to_string())?;
+            if let Some(m) = meta.remove("z_cmb") {
+                meta.insert("z_cmb_input".into(), m);
+            }
+            z_cmb_note = Some("The input's z_cmb column is kept as z_cmb_input.");
+        }
+    }
+    let z_cmb: Vec<Option<f64>> = results
+        .iter()
+        .map(|r| r.as_ref().map(|(_, z)| *z).filter(|v| v.is_finite()))
+        .collect();
+    cols.push(Column::new("z_cmb".into(), z_cmb));
+    meta.insert("z_cmb".into(), meta_of("z_cmb", ""));
     if let Some(z_helio) = given_z_helio {
         // The input gave another frame: the heliocentric redshift derived from it.
         if frame.column("z_helio").is_ok() {
@@ -238,6 +263,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
     let mut cautions = shared.cautions();
     cautions.extend(table.notes.iter().cloned());
     cautions.extend(frame_notes);
+    cautions.extend(z_cmb_note.map(String::from));
     cautions.extend(crate::catalogue::atomic::leftovers_note(&plan.output));
     cautions.extend(crate::catalogue::left_out_note(&plan.output, &out));
     cautions.extend([

@@ -52,8 +52,12 @@ pub fn cautions(
 ) -> Vec<String> {
     let mut out = vec![
         format!(
-            "Cosmological redshifts assume {} (H0 = {} km/s/Mpc, Ω_m = {}, Ω_de = {}, Ω_k = {:.3e}); peculiar velocities scale with this choice, most strongly through H0 against the distance zero point.",
-            cosmology.source, cosmology.params.h0, cosmology.params.omega_m, cosmology.params.omega_de, cosmology.omega_k
+            "Cosmological redshifts assume {} (H0 = {} km/s/Mpc, Ω_m = {}, Ω_de = {}, Ω_k = {}); peculiar velocities scale with this choice, most strongly through H0 against the distance zero point.",
+            cosmology.source,
+            super::short_number(cosmology.params.h0),
+            super::short_number(cosmology.params.omega_m),
+            super::short_number(cosmology.params.omega_de),
+            super::short_number(cosmology.omega_k)
         ),
         format!(
             "CMB frame from the '{}' apex ({:.2} km/s towards l = {}°, b = {}°).",

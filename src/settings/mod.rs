@@ -9,6 +9,7 @@ mod error;
 mod example;
 mod frames;
 mod model;
+mod number_text;
 mod stages;
 
 use schemars::JsonSchema;
@@ -31,6 +32,7 @@ pub use error::SettingsError;
 pub use example::EXAMPLE_CONFIG;
 pub use frames::{FrameChoice, ResolvedFrames};
 pub use model::{InfallChoice, ModelChoice, DEFAULT_SIGMA_V_KM_S};
+pub use number_text::short_number;
 pub use stages::{
     BulkFlowChoice, ExportChoice, FitSpace, GroupChoice, MalmquistChoice, MalmquistMethod,
     OutlierChoice,
