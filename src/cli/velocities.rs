@@ -295,8 +295,15 @@ pub fn print_summary(s: &RunSummary, json: bool) -> anyhow::Result<()> {
             p.display()
         );
     }
+    if let Some(c) = &s.sample_check {
+        println!("{}", c.line());
+    }
     for c in &s.cautions {
-        println!("note: {c}");
+        if c.starts_with("Implausible result:") {
+            println!("warning: {c}");
+        } else {
+            println!("note: {c}");
+        }
     }
     Ok(())
 }

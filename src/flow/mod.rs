@@ -11,6 +11,7 @@ pub mod lcdm;
 pub mod line_of_sight;
 pub mod outliers;
 pub mod sample;
+pub mod sanity;
 
 pub use error::FlowError;
 pub use sample::FlowSample;

@@ -205,7 +205,8 @@ pub const PRESETS: &[Preset] = &[
             w0: -1.0,
             wa: 0.0,
         },
-        source: "Planck Collaboration VI (2020), A&A 641, A6, Table 2, TT,TE,EE+lowE+lensing+BAO: H0 = 67.66, Ω_m = 0.3111, flat (from memory; radiation neglected)",
+        // The table values are from memory (not re-read in the paper).
+        source: "Planck Collaboration VI (2020), A&A 641, A6, Table 2, TT,TE,EE+lowE+lensing+BAO: H0 = 67.66, Ω_m = 0.3111, flat (radiation neglected)",
     },
 ];
 

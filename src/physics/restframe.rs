@@ -190,7 +190,8 @@ pub fn apex_table() -> Vec<Apex> {
             306.0,
             99.0,
             -4.0,
-            "Courteau & van den Bergh (1999), AJ 118, 337 (journal reference from memory): Sun relative to the Local Group barycentre, 306 ± 18 km/s towards l = 99° ± 5°, b = −4° ± 4°",
+            // The journal reference is from memory.
+            "Courteau & van den Bergh (1999), AJ 118, 337: Sun relative to the Local Group barycentre, 306 ± 18 km/s towards l = 99° ± 5°, b = −4° ± 4°",
         ),
         lg(
             "yahil1977",

@@ -68,6 +68,8 @@ pub struct RunSummary {
     pub bulk_flow: Option<(crate::flow::bulk_flow_report::BulkFlowReport, PathBuf)>,
     /// The flow-sample export.
     pub export: Option<(crate::flow::export::ExportSummary, PathBuf)>,
+    /// The sample check (median, scatter, monopole; warnings are also in the cautions).
+    pub sample_check: Option<crate::flow::sanity::SampleCheck>,
 }
 
 /// Read a catalogue as a plan names it (for callers that want to inspect it first).
@@ -330,6 +332,28 @@ pub fn run_velocities(
         None => None,
     };
     drop(input);
+    let sample_check = {
+        let column = |name: &str| derived.get(name).unwrap_or(&[]);
+        let ok: Vec<bool> = derived
+            .status
+            .iter()
+            .map(|s| *s == RowStatus::Ok as u8)
+            .collect();
+        crate::flow::sanity::check_sample(
+            column("v_pec"),
+            column("v_pec_err"),
+            column("eta"),
+            column("eta_err"),
+            &ok,
+        )
+    };
+    if let Some(c) = &sample_check {
+        notes.extend(
+            c.warnings
+                .iter()
+                .map(|w| format!("Implausible result: {w}")),
+        );
+    }
     let mapping = columns.describe();
     let (mut out_table, renamed) =
         pipeline::assemble(&table, derived, extra, columns.length_unit.label())?;
@@ -440,5 +464,6 @@ pub fn run_velocities(
         outliers: outlier_summary,
         bulk_flow: bulk_summary,
         export: export_summary,
+        sample_check,
     })
 }
