@@ -432,3 +432,59 @@ fn eta_range_flag_takes_a_comma_separated_pair() {
     assert!(!out.status.success());
     assert!(String::from_utf8_lossy(&out.stderr).contains("expected two numbers"));
 }
+
+/// The flow-sample export keeps each object's name beside its `row`, so the exported rows can
+/// be matched back to the catalogue by either.
+#[test]
+fn export_keeps_the_object_name() {
+    let dir = tempfile::tempdir().unwrap();
+    let demo = std::fs::read_to_string(concat!(
+        env!("CARGO_MANIFEST_DIR"),
+        "/demo-data/lantern_survey.csv"
+    ))
+    .unwrap();
+    let mut text = String::new();
+    for (i, line) in demo.lines().take(301).enumerate() {
+        if i == 0 {
+            text.push_str(&format!("Name,{line}\n"));
+        } else {
+            text.push_str(&format!("obj-{:04},{line}\n", i - 1));
+        }
+    }
+    let ip = dir.path().join("named.csv");
+    std::fs::write(&ip, text).unwrap();
+    let op = dir.path().join("out.csv");
+    let ep = dir.path().join("flow.csv");
+    run_ok(&[
+        "velocities",
+        ip.to_str().unwrap(),
+        "-o",
+        op.to_str().unwrap(),
+        "--export",
+        ep.to_str().unwrap(),
+    ]);
+    let export = read_table(&ep, &ReadOptions::default()).unwrap();
+    let rows: Vec<i64> = export
+        .frame
+        .column("row")
+        .unwrap()
+        .cast(&DataType::Int64)
+        .unwrap()
+        .i64()
+        .unwrap()
+        .into_no_null_iter()
+        .collect();
+    let names: Vec<String> = export
+        .frame
+        .column("Name")
+        .unwrap()
+        .str()
+        .unwrap()
+        .iter()
+        .map(|v| v.unwrap_or_default().to_string())
+        .collect();
+    assert!(rows.len() > 250, "{} rows exported", rows.len());
+    for (r, n) in rows.iter().zip(&names) {
+        assert_eq!(n, &format!("obj-{r:04}"));
+    }
+}

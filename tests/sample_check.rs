@@ -41,6 +41,11 @@ fn demo_survey_passes_and_a_misread_distance_warns() {
     assert!(!text.contains("warning: Implausible"), "{text}");
     let c = &json["sample_check"];
     assert!(c["median_v_pec"].as_f64().unwrap().abs() < 300.0, "{c}");
+    // The status counts are an object by status name, and add up to the rows read.
+    let counts = json["counts"].as_object().unwrap();
+    assert_eq!(counts["ok"], json["rows_ok"]);
+    let total: u64 = counts.values().map(|v| v.as_u64().unwrap()).sum();
+    assert_eq!(Some(total), json["rows_read"].as_u64());
     assert!(c["monopole_eta"].as_f64().unwrap().abs() < 0.01, "{c}");
 
     let (text, json) = run(&["--distance-column", "mu", "--distance-kind", "dl"]);

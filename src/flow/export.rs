@@ -18,6 +18,37 @@ pub struct ExportSummary {
     pub outliers_left_out: usize,
 }
 
+/// Names of an object-name column, looked for in this order (ASCII case ignored) when no
+/// column carries the UCD `meta.id;meta.main` (IVOA UCD1+, the main identifier).
+const NAME_COLUMNS: [&str; 5] = ["name", "object", "objname", "galaxy", "id"];
+
+/// The column holding each object's name, if the table has one: the first with UCD
+/// `meta.id;meta.main`, else the first of [`NAME_COLUMNS`].
+fn name_column(table: &Table) -> Option<String> {
+    let names: Vec<String> = table
+        .frame
+        .get_column_names()
+        .iter()
+        .map(|n| n.to_string())
+        .collect();
+    names
+        .iter()
+        .find(|n| {
+            table
+                .meta
+                .get(n.as_str())
+                .and_then(|m| m.ucd.as_deref())
+                .is_some_and(|u| u.trim().eq_ignore_ascii_case("meta.id;meta.main"))
+        })
+        .or_else(|| {
+            NAME_COLUMNS
+                .iter()
+                .find_map(|want| names.iter().find(|n| n.eq_ignore_ascii_case(want)))
+        })
+        .filter(|n| !matches!(n.as_str(), "row" | "group_id"))
+        .cloned()
+}
+
 /// Build the export table from a flowsift output. `distance_unit_is_h` says whether the
 /// output's d_c is in h⁻¹ Mpc; `h` is H0/100. Rows whose status is not ok are left out, and
 /// so are outliers unless `keep_outliers`; the `row` column gives each row's index in the
@@ -112,6 +143,20 @@ pub fn export_table(
             ucd: Some("meta.id".into()),
         },
     );
+    if let Some(name) = name_column(table) {
+        let v = text_column(table, &name)?;
+        columns.push(Column::new(
+            name.as_str().into(),
+            keep.iter().map(|&i| v[i].clone()).collect::<Vec<_>>(),
+        ));
+        meta.insert(
+            name,
+            ColumnMeta {
+                unit: None,
+                ucd: Some("meta.id;meta.main".into()),
+            },
+        );
+    }
     if table.frame.column("group_id").is_ok() {
         let g = text_column(table, "group_id")?;
         columns.push(Column::new(

@@ -30,6 +30,7 @@ use super::{cosmology_reaching, RunError};
 #[derive(Debug, Clone, Serialize)]
 pub struct CorrectSummary {
     pub rows: usize,
+    #[serde(serialize_with = "super::counts_as_object")]
     pub counts: Vec<(String, usize)>,
     pub output: PathBuf,
     pub cautions: Vec<String>,

@@ -49,6 +49,7 @@ pub struct RunSummary {
     pub rows_read: usize,
     pub rows_ok: usize,
     /// Rows per status, every status listed.
+    #[serde(serialize_with = "counts_as_object")]
     pub counts: Vec<(String, usize)>,
     /// Column mapping, one line per role.
     pub mapping: Vec<String>,
@@ -70,6 +71,20 @@ pub struct RunSummary {
     pub export: Option<(crate::flow::export::ExportSummary, PathBuf)>,
     /// The sample check (median, scatter, monopole; warnings are also in the cautions).
     pub sample_check: Option<crate::flow::sanity::SampleCheck>,
+}
+
+/// Counts per name, in their order, written as a JSON object (`{"ok": 2990, …}`) rather than
+/// a list of pairs.
+pub(crate) fn counts_as_object<S: serde::Serializer>(
+    counts: &[(String, usize)],
+    s: S,
+) -> Result<S::Ok, S::Error> {
+    use serde::ser::SerializeMap;
+    let mut m = s.serialize_map(Some(counts.len()))?;
+    for (name, n) in counts {
+        m.serialize_entry(name, n)?;
+    }
+    m.end()
 }
 
 /// Read a catalogue as a plan names it (for callers that want to inspect it first).
