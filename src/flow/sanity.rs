@@ -63,7 +63,8 @@ fn robust(values: impl Iterator<Item = f64>) -> Option<(f64, f64)> {
     Some((m, MAD_TO_SIGMA * median(&dev)))
 }
 
-/// The check over the rows marked `ok`. None when no row is usable.
+/// The check over the rows marked `ok`. None when no row is usable or the columns differ
+/// in length.
 pub fn check_sample(
     v_pec: &[f64],
     v_pec_err: &[f64],
@@ -71,7 +72,14 @@ pub fn check_sample(
     eta_err: &[f64],
     ok: &[bool],
 ) -> Option<SampleCheck> {
-    let rows = || (0..v_pec.len()).filter(|&i| ok[i] && v_pec[i].is_finite());
+    let n_rows = v_pec.len();
+    if [v_pec_err.len(), eta.len(), eta_err.len(), ok.len()]
+        .iter()
+        .any(|&len| len != n_rows)
+    {
+        return None;
+    }
+    let rows = || (0..n_rows).filter(|&i| ok[i] && v_pec[i].is_finite());
     let n = rows().count();
     let (median_v_pec, robust_scatter_v_pec) = robust(rows().map(|i| v_pec[i]))?;
     let (median_eta, robust_scatter_eta) =
@@ -181,5 +189,6 @@ mod tests {
         assert_eq!(c.warnings.len(), 1, "{:?}", c.warnings);
         assert!(c.warnings[0].contains("--distance-kind"));
         assert!(check_sample(&[], &[], &[], &[], &[]).is_none());
+        assert!(check_sample(&v, &e[..2], &eta, &eta_err, &ok).is_none());
     }
 }
