@@ -458,7 +458,7 @@ fn bad_input_unknown_names() {
     );
     fails_with(
         &["distances", "--z", "0.1", "--preset", "nope"],
-        "known: common",
+        "known: concordance",
     );
 }
 

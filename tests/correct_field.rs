@@ -293,7 +293,7 @@ fn density_image_with_isolated_boundary() {
             ("FS_ORIG1", origin),
             ("FS_ORIG2", origin),
             ("FS_ORIG3", origin),
-            ("FS_SPACE", h),
+            ("FS_SPACE", h), // the card's former name, still read
         ] {
             hdu.write_key(&mut f, key, value).unwrap();
         }
@@ -382,7 +382,7 @@ fn vector_flags_take_comma_separated_triples() {
         "40",
         "--seed",
         "3",
-        "--bulk-flow",
+        "--uniform-flow",
         "-100,50,20",
     ]);
     let field = dir.path().join("field.fits");
@@ -390,7 +390,7 @@ fn vector_flags_take_comma_separated_triples() {
         "field",
         "-o",
         field.to_str().unwrap(),
-        "--bulk",
+        "--uniform-flow",
         "150,-200,80",
         "--cells",
         "8",
@@ -403,7 +403,7 @@ fn vector_flags_take_comma_separated_triples() {
         mock.to_str().unwrap(),
         "-o",
         out.to_str().unwrap(),
-        "--bulk",
+        "--uniform-flow",
         "-150,200,-80",
         "--external",
         "-10,20,30",
@@ -418,13 +418,13 @@ fn vector_flags_take_comma_separated_triples() {
                 mock.to_str().unwrap(),
                 "-o",
                 dir.path().join("bad.csv").to_str().unwrap(),
-                "--bulk",
+                "--uniform-flow",
                 bad,
             ])
             .output()
             .unwrap();
         assert!(!o.status.success());
         let err = String::from_utf8_lossy(&o.stderr);
-        assert!(err.contains("--bulk") && err.contains(bad), "{err}");
+        assert!(err.contains("--uniform-flow") && err.contains(bad), "{err}");
     }
 }

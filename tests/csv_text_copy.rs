@@ -320,7 +320,7 @@ fn correct_copies_the_input_lines() {
         input.to_str().unwrap(),
         "-o",
         output.to_str().unwrap(),
-        "--bulk",
+        "--uniform-flow",
         "150,-200,80",
     ]);
     let text = std::fs::read_to_string(&output).unwrap();

@@ -12,7 +12,7 @@ use rand_distr::{Distribution, Normal, Uniform};
 
 use flowsift::catalogue::bulk_flow_file::{read_bulk_flow, write_bulk_flow};
 use flowsift::catalogue::{write_table, Provenance, RunRecord, Table, WriteOptions};
-use flowsift::flow::bulk_flow_report::{AxesReport, BulkFlowReport, LcdmComparison};
+use flowsift::flow::bulk_flow_report::{AxesReport, BulkFlowReport, FitSummary, LcdmComparison};
 use flowsift::physics::cosmology::{Cosmology, CosmologyParams};
 use flowsift::physics::sky::{galactic_to_supergalactic, Direction, Galactic};
 use flowsift::report::{
@@ -105,8 +105,10 @@ fn mock_table(n: usize, bad: usize, with_mu: bool) -> Table {
 fn bulk_flow_fixture() -> BulkFlowReport {
     let cov = [[6400.0, 0.0, 0.0], [0.0, 6400.0, 0.0], [0.0, 0.0, 6400.0]];
     BulkFlowReport {
-        v_galactic: [80.0, -230.0, 43.0],
-        cov,
+        galactic: AxesReport {
+            v: [80.0, -230.0, 43.0],
+            cov,
+        },
         amplitude: 250.0,
         amplitude_err: 80.0,
         l: 290.0,
@@ -119,11 +121,13 @@ fn bulk_flow_fixture() -> BulkFlowReport {
             v: [-150.0, 180.0, -60.0],
             cov,
         },
-        sigma_star: 150.0,
-        sigma_star_fitted: true,
-        n_used: 380,
-        fit_space: FitSpace::Eta,
-        chi2: 391.0,
+        fit: FitSummary {
+            quantity: FitSpace::Eta,
+            n_used: 380,
+            sigma_star: 150.0,
+            sigma_star_fitted: true,
+            chi2: 391.0,
+        },
         lcdm: Some(LcdmComparison {
             lcdm_rms: [110.0, 111.0, 109.0],
             lcdm_cov: [

@@ -326,17 +326,19 @@ fn stages_from_a_run_file() {
         &std::fs::read_to_string(dir.path().join("out.fits.bulkflow.json")).unwrap(),
     )
     .unwrap();
-    for k in [
-        "v_galactic",
-        "cov",
-        "amplitude",
-        "l",
-        "b",
-        "sigma_star",
-        "n_used",
-    ] {
+    for k in ["galactic", "amplitude", "l", "b", "fit"] {
         assert!(json.get(k).is_some(), "{k} missing");
     }
+    for k in [
+        "quantity",
+        "n_used",
+        "sigma_star",
+        "sigma_star_fitted",
+        "chi2",
+    ] {
+        assert!(json["fit"].get(k).is_some(), "fit.{k} missing");
+    }
+    assert!(json["galactic"]["v"].is_array() && json["galactic"]["cov"].is_array());
     assert!(json["supergalactic"]["v"].is_array() && json["equatorial"]["v"].is_array());
     // The typed reader reads every key the stage wrote: written again, the report is the file
     // without its record.
@@ -369,7 +371,8 @@ fn stages_from_a_run_file() {
     // Stand-alone stages on the output agree with the in-run ones.
     let bf = run_ok(&["bulkflow", op.to_str().unwrap(), "--json", "--no-lcdm"]);
     let j: serde_json::Value = serde_json::from_str(&bf).unwrap();
-    assert_eq!(j["n_used"], json["n_used"]);
+    assert!(json["fit"]["n_used"].as_u64().unwrap() > 0);
+    assert_eq!(j["fit"]["n_used"], json["fit"]["n_used"]);
     let _ = BTreeMap::<(), ()>::new();
 }
 

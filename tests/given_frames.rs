@@ -216,7 +216,7 @@ fn correct_honours_galactic_positions_and_cmb_frame_redshifts() {
             .unwrap()
             .args(["correct", p.to_str().unwrap(), "-o"])
             .arg(&o)
-            .args(["--bulk", "300,-200,100"])
+            .args(["--uniform-flow", "300,-200,100"])
             .output()
             .unwrap();
         let text = String::from_utf8_lossy(&done.stdout).to_string()

@@ -208,7 +208,7 @@ fn correct_reads_the_catalogue_like_velocities() {
             i.to_str().unwrap(),
             "-o",
             o.to_str().unwrap(),
-            "--bulk",
+            "--uniform-flow",
             "300,-100,50",
         ]);
     }
@@ -230,7 +230,7 @@ fn correct_reads_the_catalogue_like_velocities() {
             input.to_str().unwrap(),
             "-o",
             dir.path().join("c.fits").to_str().unwrap(),
-            "--bulk",
+            "--uniform-flow",
             "300,-100,50",
             "--z-unit",
             "z",
@@ -334,7 +334,7 @@ fn no_output_replaces_an_input() {
         "field",
         "-o",
         &d("f.fits"),
-        "--bulk",
+        "--uniform-flow",
         "100,0,0",
         "--cells",
         "8",

@@ -825,3 +825,71 @@ fn bad_input_messages() {
     assert!(leftovers.is_empty());
     assert!(!Path::new(&d("o2.csv")).exists());
 }
+
+/// `--watkins-feldman` adds `v_pec_wf` and `v_pec_wf_err`, and they follow the published
+/// form (Watkins & Feldman 2015, MNRAS 450, 1868, eq. as quoted in
+/// `physics::estimators::watkins_feldman_velocity`) evaluated here from the astropy
+/// reference z_cmb (galaxy_pv.csv) and D_L = 10^(μ/5 − 5) Mpc, with the deceleration and
+/// jerk of flat ΛCDM, q0 = Ω_m/2 − Ω_Λ and j0 = 1 (handbook values, e.g. Visser 2004,
+/// CQG 21, 2603; from memory). Its error is the first-order one from σ_μ = 0.1 mag and
+/// σ_z = 1e-4; without the flag neither column is written.
+#[test]
+fn watkins_feldman_columns_follow_the_published_form() {
+    let r = reference();
+    let dir = tempfile::tempdir().unwrap();
+    let input = dir.path().join("in.csv");
+    write(&input, &input_table(&r));
+    let out = dir.path().join("wf.parquet");
+    run_ok(&[
+        "velocities",
+        input.to_str().unwrap(),
+        "-o",
+        out.to_str().unwrap(),
+        "--watkins-feldman",
+    ]);
+    let t = read(&out);
+    assert_eq!(
+        t.meta.get("v_pec_wf").and_then(|m| m.unit.as_deref()),
+        Some("km/s")
+    );
+    let (wf, wf_err) = (f64s(&t, "v_pec_wf"), f64s(&t, "v_pec_wf_err"));
+    let (c, h0, om) = (299_792.458, 70.0, 0.3);
+    let (q0, j0) = (om / 2.0 - (1.0 - om), 1.0);
+    let wf_of = |z: f64, d_l: f64| {
+        let z_mod =
+            z * (1.0 + 0.5 * (1.0 - q0) * z - (1.0 - q0 - 3.0 * q0 * q0 + j0) * z * z / 6.0);
+        c * z_mod / (1.0 + z_mod) * (c * z_mod / (h0 * d_l)).ln()
+    };
+    for i in 0..r.ra.len() {
+        let (z, d_l) = (r.z_cmb[i], 10f64.powf(r.mu[i] / 5.0 - 5.0));
+        // 2e-6 in z_cmb (the reference check's limit) moves v by < 1 km/s at these redshifts.
+        let v = wf_of(z, d_l);
+        assert!(
+            (wf[i].unwrap() - v).abs() < 1.0,
+            "row {i}: {:?} vs {v}",
+            wf[i]
+        );
+        // First-order error by central differences of the form above: σ(ln D_L) = ln10/5 σ_μ,
+        // σ(z_cmb) = σ_z (1 + z_cmb)/(1 + z_helio) for the exact boost.
+        let h = 1e-7;
+        let dv_dz = (wf_of(z + h, d_l) - wf_of(z - h, d_l)) / (2.0 * h);
+        let dv_dlnd = (wf_of(z, d_l * h.exp()) - wf_of(z, d_l * (-h).exp())) / (2.0 * h);
+        let sz = 1e-4 * (1.0 + z) / (1.0 + r.z_helio[i]);
+        let expected =
+            ((dv_dz * sz).powi(2) + (dv_dlnd * std::f64::consts::LN_10 / 5.0 * 0.1).powi(2)).sqrt();
+        let e = wf_err[i].unwrap();
+        // (1e-3: the 2e-6 allowance in z_cmb, relative at the lowest redshifts.)
+        assert!(
+            (e / expected - 1.0).abs() < 1e-3,
+            "row {i}: {e} vs {expected}"
+        );
+    }
+    let plain = dir.path().join("plain.parquet");
+    run_ok(&[
+        "velocities",
+        input.to_str().unwrap(),
+        "-o",
+        plain.to_str().unwrap(),
+    ]);
+    assert!(read(&plain).frame.column("v_pec_wf").is_err());
+}

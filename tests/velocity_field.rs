@@ -591,7 +591,7 @@ fn fits_round_trip_is_exact_and_readable_by_fitsio() {
         assert_eq!(data, grid.v[c]);
         let bunit: String = hdu.read_key(&mut f, "BUNIT").unwrap();
         assert_eq!(bunit, "km/s");
-        let space: f64 = hdu.read_key(&mut f, "FS_SPACE").unwrap();
+        let space: f64 = hdu.read_key(&mut f, "FS_CELL").unwrap();
         assert_eq!(space, 2.5);
         let o1: f64 = hdu.read_key(&mut f, "FS_ORIG1").unwrap();
         assert_eq!(o1, -12.345678901234567);
@@ -702,7 +702,7 @@ fn fits_files_from_elsewhere_and_bad_fits_files() {
         ("FS_ORIG1", -4.0),
         ("FS_ORIG2", 0.0),
         ("FS_ORIG3", 2.0),
-        ("FS_SPACE", 2.0),
+        ("FS_CELL", 2.0),
     ];
 
     // A complete file written by another program reads, with x fastest.
@@ -748,12 +748,12 @@ fn fits_files_from_elsewhere_and_bad_fits_files() {
     }
     assert_eq!(read_field(&path, None, None).unwrap(), grid);
 
-    // Missing FS_SPACE.
+    // Missing FS_CELL.
     let path = dir.path().join("nospace.fits");
     write_foreign_fits(&path, &all, &strings, &numbers[..3]);
     let e = message(read_field(&path, None, None).unwrap_err());
     assert!(
-        e.contains("nospace.fits") && e.contains("FS_SPACE") && e.contains("HDU VX"),
+        e.contains("nospace.fits") && e.contains("FS_CELL") && e.contains("HDU VX"),
         "{e}"
     );
 

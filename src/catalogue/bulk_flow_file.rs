@@ -43,7 +43,7 @@ pub fn read_bulk_flow(path: &Path) -> Result<BulkFlowReport, CatalogueError> {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::flow::bulk_flow_report::{AxesReport, LcdmComparison};
+    use crate::flow::bulk_flow_report::{AxesReport, FitSummary, LcdmComparison};
     use crate::settings::FitSpace;
 
     fn report(amplitude_err: f64, lcdm: bool) -> BulkFlowReport {
@@ -53,8 +53,10 @@ mod tests {
             [-3.0, 7.25, 5900.0],
         ];
         BulkFlowReport {
-            v_galactic: [80.0, -230.0, 43.0],
-            cov,
+            galactic: AxesReport {
+                v: [80.0, -230.0, 43.0],
+                cov,
+            },
             amplitude: 247.3,
             amplitude_err,
             l: 289.2,
@@ -67,11 +69,13 @@ mod tests {
                 v: [1.0e-3, -2.5e5, 3.0],
                 cov,
             },
-            sigma_star: 151.5,
-            sigma_star_fitted: true,
-            n_used: 380,
-            fit_space: FitSpace::Velocity,
-            chi2: 377.125,
+            fit: FitSummary {
+                quantity: FitSpace::Velocity,
+                n_used: 380,
+                sigma_star: 151.5,
+                sigma_star_fitted: true,
+                chi2: 377.125,
+            },
             lcdm: lcdm.then(|| LcdmComparison {
                 lcdm_rms: [110.0, 111.0, 109.0],
                 lcdm_cov: cov,
@@ -106,7 +110,7 @@ mod tests {
             // The file is the report's own JSON with the record beside it.
             let text = std::fs::read_to_string(&path).unwrap();
             let value: serde_json::Value = serde_json::from_str(&text).unwrap();
-            assert_eq!(value["fit_space"], "velocity");
+            assert_eq!(value["fit"]["quantity"], "velocity");
             assert_eq!(value["record"]["step"], "bulkflow");
             assert_eq!(value["lcdm"].is_null(), !lcdm);
             // An existing file is kept without force.
@@ -120,16 +124,16 @@ mod tests {
         let dir = tempfile::tempdir().unwrap();
         let path = dir.path().join("b.json");
         let mut written = report(f64::NAN, true);
-        written.cov[1][2] = f64::INFINITY;
+        written.galactic.cov[1][2] = f64::INFINITY;
         write_bulk_flow(&path, &written, &record(), false).unwrap();
         let text = std::fs::read_to_string(&path).unwrap();
         assert!(text.contains("\"amplitude_err\": null"), "{text}");
         let read = read_bulk_flow(&path).unwrap();
-        assert!(read.amplitude_err.is_nan() && read.cov[1][2].is_nan());
+        assert!(read.amplitude_err.is_nan() && read.galactic.cov[1][2].is_nan());
         let mut expected = written.clone();
-        (expected.amplitude_err, expected.cov[1][2]) = (0.0, 0.0);
+        (expected.amplitude_err, expected.galactic.cov[1][2]) = (0.0, 0.0);
         let mut got = read;
-        (got.amplitude_err, got.cov[1][2]) = (0.0, 0.0);
+        (got.amplitude_err, got.galactic.cov[1][2]) = (0.0, 0.0);
         assert_eq!(got, expected);
     }
 
@@ -157,7 +161,7 @@ mod tests {
         );
         let space = dir.path().join("space.json");
         let mut value = serde_json::to_value(report(80.0, false)).unwrap();
-        value["fit_space"] = "distance".into();
+        value["fit"]["quantity"] = "distance".into();
         std::fs::write(&space, value.to_string()).unwrap();
         let e = read_bulk_flow(&space).unwrap_err().to_string();
         assert!(e.contains("distance"), "{e}");

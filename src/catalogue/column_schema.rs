@@ -122,13 +122,15 @@ pub const DERIVED: [ColumnSpec; 18] = [
     col(
         "eta",
         NoUnit,
-        "pos.distance",
+        // η is a (log) ratio of two distances, not a distance: UCD1+ `arith.ratio` qualified by
+        // `pos.distance` (IVOA UCD1+ controlled vocabulary; the word list from memory).
+        "arith.ratio;pos.distance",
         "log-distance ratio log10(D_C(z_cmb)/D_C(z_cos))",
     ),
     col(
         "eta_err",
         NoUnit,
-        "stat.error;pos.distance",
+        "stat.error;arith.ratio;pos.distance",
         "first-order error of eta",
     ),
     col(
@@ -160,7 +162,7 @@ pub const STATUS: ColumnSpec = col(
 );
 
 /// Columns the sample stages and Monte Carlo add.
-pub const STAGE: [ColumnSpec; 9] = [
+pub const STAGE: [ColumnSpec; 11] = [
     col(
         "v_pec_mc_median",
         Fixed("km/s"),
@@ -178,6 +180,18 @@ pub const STAGE: [ColumnSpec; 9] = [
         Fixed("km/s"),
         "phys.veloc;stat.max",
         "Monte Carlo 84.13th percentile of v_pec",
+    ),
+    col(
+        "v_pec_wf",
+        Fixed("km/s"),
+        "phys.veloc",
+        "Watkins & Feldman (2015) estimate of v_pec, for comparison (--watkins-feldman)",
+    ),
+    col(
+        "v_pec_wf_err",
+        Fixed("km/s"),
+        "stat.error;phys.veloc",
+        "its first-order error (redshift and distance errors, no σ_*)",
     ),
     col(
         "mc_failed_draws",
@@ -266,10 +280,10 @@ pub const CORRECTION: [ColumnSpec; 6] = [
         "its error (σ_v and the redshift error)",
     ),
     col(
-        "mu_pec_err",
+        "mu_err_z_cos",
         Fixed("mag"),
         "stat.error;phot.mag.distMod",
-        "distance-modulus error that implies",
+        "distance-modulus error implied by z_cos_model_err (σ_v and the redshift error)",
     ),
     col(
         "field_distance",

@@ -25,22 +25,23 @@
 //! | card                 | type   | value                                                     |
 //! |----------------------|--------|-----------------------------------------------------------|
 //! | `FS_ORIG1..3`        | real   | x, y, z of the centre of cell (0, 0, 0) (pixel [1, 1, 1]), in `FS_LUNIT` |
-//! | `FS_SPACE`           | real   | distance between neighbouring cell centres, > 0, the same on all three axes, in `FS_LUNIT` |
+//! | `FS_CELL`            | real   | distance between neighbouring cell centres, > 0, the same on all three axes, in `FS_LUNIT` |
 //! | `FS_AXES`            | string | `'SUPERGALACTIC'` or `'GALACTIC'` ([`FieldAxes`])        |
 //! | `FS_LUNIT`           | string | `'Mpc'` or `'Mpc/h'` (h⁻¹ Mpc)                            |
 //!
-//! Cell (i, j, k) is centred at (FS_ORIG1 + i·FS_SPACE, FS_ORIG2 + j·FS_SPACE,
-//! FS_ORIG3 + k·FS_SPACE). Reals are written with 17 significant digits, so they read back
+//! Cell (i, j, k) is centred at (FS_ORIG1 + i·FS_CELL, FS_ORIG2 + j·FS_CELL,
+//! FS_ORIG3 + k·FS_CELL). Reals are written with 17 significant digits, so they read back
 //! exactly. The writer also puts a linear WCS on each image for viewers (`CTYPEi` = `'SGX'`,
 //! `'SGY'`, `'SGZ'` or `'GX'`, `'GY'`, `'GZ'`, `CRPIXi = 1`, `CRVALi = FS_ORIGi`,
-//! `CDELTi = FS_SPACE`, and `CUNITi = 'Mpc'` when the unit is Mpc); readers ignore it.
-//! Every velocity must be finite.
+//! `CDELTi = FS_CELL`, and `CUNITi = 'Mpc'` when the unit is Mpc); readers ignore it.
+//! Every velocity must be finite. (Files written before the cell-size card was renamed carry
+//! it as `FS_SPACE`; readers accept both.)
 //!
 //! **Reading** finds the three images by `EXTNAME` (any case; `HDUNAME` also matches, as
 //! cfitsio does), wherever they are — so a file whose primary array is `VX` is read too —
 //! and ignores other HDUs. Any `BITPIX` is accepted and converted to float64 (with `BSCALE`
 //! / `BZERO` applied). Each card is looked up in the component's own header first, then in
-//! the primary header. Required: `FS_ORIG1..3`, `FS_SPACE` and `BUNIT` (`'km/s'`, or
+//! the primary header. Required: `FS_ORIG1..3`, `FS_CELL` and `BUNIT` (`'km/s'`, or
 //! `'km s-1'`, `'km.s-1'`); `FS_AXES` and `FS_LUNIT` are required unless the caller supplies
 //! them (an `axes_hint` / `unit_hint`), and a hint that contradicts a card is an error.
 //! The three images must have the same shape and geometry. `FS_VERS` above 1 is refused.
@@ -50,7 +51,7 @@
 //!
 //! [`read_density`] also reads a density contrast δ = ρ/ρ̄ − 1 as one 3-D image with
 //! `EXTNAME = 'DELTA'` (found wherever it is, as above; any `BITPIX`), pixel [i+1, j+1, k+1]
-//! being δ of cell (i, j, k), with the same geometry cards (`FS_ORIG1..3`, `FS_SPACE`,
+//! being δ of cell (i, j, k), with the same geometry cards (`FS_ORIG1..3`, `FS_CELL`,
 //! `FS_AXES`, `FS_LUNIT`, on the image or the primary header; hints as above). `BUNIT` may
 //! be absent or dimensionless (`''` or `'1'`); any other unit is refused. Every δ must be
 //! finite and above −1.
@@ -367,9 +368,13 @@ impl Cards {
         for (a, key) in ORIGIN_KEYS.iter().enumerate() {
             c.origin[a] = file.key_f64(key).map_err(|m| format!("{hdu}: {m}"))?;
         }
-        c.spacing = file
-            .key_f64("FS_SPACE")
-            .map_err(|m| format!("{hdu}: {m}"))?;
+        c.spacing = match file.key_f64("FS_CELL").map_err(|m| format!("{hdu}: {m}"))? {
+            Some(v) => Some(v),
+            // Files written before the card was renamed call it FS_SPACE.
+            None => file
+                .key_f64("FS_SPACE")
+                .map_err(|m| format!("{hdu}: {m}"))?,
+        };
         c.axes = file.key_str("FS_AXES").map_err(|m| format!("{hdu}: {m}"))?;
         c.unit = file
             .key_str("FS_LUNIT")
@@ -396,7 +401,7 @@ impl Cards {
     }
 }
 
-const CARD_HELP: &str = "a flowsift field file needs FS_ORIG1..3, FS_SPACE, FS_AXES, FS_LUNIT \
+const CARD_HELP: &str = "a flowsift field file needs FS_ORIG1..3, FS_CELL, FS_AXES, FS_LUNIT \
                          and BUNIT = 'km/s' on each image or on the primary header";
 
 /// One image's geometry, resolved and checked.
@@ -451,10 +456,10 @@ fn resolve_geometry(
     }
     let spacing = cards
         .spacing
-        .ok_or_else(|| missing("FS_SPACE", "cell size"))?;
+        .ok_or_else(|| missing("FS_CELL", "cell size"))?;
     if !(spacing.is_finite() && spacing > 0.0) {
         return Err(format!(
-            "HDU {hdu}: FS_SPACE = {spacing}; the cell size must be positive and finite"
+            "HDU {hdu}: FS_CELL = {spacing}; the cell size must be positive and finite"
         ));
     }
     let axes = match (&cards.axes, axes_hint) {
@@ -668,12 +673,12 @@ fn write_geometry_cards(file: &FitsHandle, grid: &VelocityGrid) -> Result<(), St
             &format!("{} of the first cell centre", labels[a]),
         )?;
     }
-    file.write_f64("FS_SPACE", grid.spacing, "cell size (between cell centres)")?;
+    file.write_f64("FS_CELL", grid.spacing, "cell size (between cell centres)")?;
     file.write_str("FS_AXES", axes_card(grid.axes), "Cartesian axes of x, y, z")?;
     file.write_str(
         "FS_LUNIT",
         grid.length_unit.label(),
-        "unit of FS_ORIGn and FS_SPACE",
+        "unit of FS_ORIGn and FS_CELL",
     )
 }
 
@@ -690,7 +695,7 @@ fn write_image_form(file: &FitsHandle, grid: &VelocityGrid) -> Result<(), String
     write_geometry_cards(file, grid)?;
     for text in [
         "Velocity field: images VX, VY, VZ (km/s), x fastest; cell (i,j,k)",
-        "is centred at FS_ORIGn + (i,j,k)*FS_SPACE, in FS_LUNIT.",
+        "is centred at FS_ORIGn + (i,j,k)*FS_CELL, in FS_LUNIT.",
     ] {
         file.write_comment(text)
             .map_err(|s| format!("cannot write a comment: {}", status_text(s)))?;
@@ -717,7 +722,7 @@ fn write_image_form(file: &FitsHandle, grid: &VelocityGrid) -> Result<(), String
             file.write_str(&format!("CTYPE{n}"), ctype, "linear axis")?;
             file.write_f64(&format!("CRPIX{n}"), 1.0, "reference pixel")?;
             file.write_f64(&format!("CRVAL{n}"), grid.origin[a], "= FS_ORIG")?;
-            file.write_f64(&format!("CDELT{n}"), grid.spacing, "= FS_SPACE")?;
+            file.write_f64(&format!("CDELT{n}"), grid.spacing, "= FS_CELL")?;
             if grid.length_unit == LengthUnit::Mpc {
                 file.write_str(&format!("CUNIT{n}"), "Mpc", "")?;
             }

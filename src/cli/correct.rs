@@ -16,7 +16,7 @@ use super::options::{ConventionFlags, CosmologyFlags, FrameFlags, SkyRedshiftFla
 /// Correct redshifts for the peculiar velocities a model predicts.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  flowsift correct sne.csv --field flow.fits -o sne_corrected.csv --beta 0.43 --sigma-v 250\n  flowsift correct sne.csv -o out.parquet --bulk 150,-200,80 --infall cluster,-30,20,5,0.8,8"
+    after_help = "Examples:\n  flowsift correct sne.csv --field flow.fits -o sne_corrected.csv --beta 0.43 --sigma-v 250\n  flowsift correct sne.csv -o out.parquet --uniform-flow 150,-200,80 --infall cluster,-30,20,5,0.8,8"
 )]
 pub struct CorrectArgs {
     /// Catalogue with positions and redshifts (ra, dec and z_helio or cz_helio by default;
@@ -69,20 +69,21 @@ pub struct ModelFlags {
     /// (default, when neither this nor --beta is given: Ω_m^0.55 of the cosmology).
     #[arg(long = "growth-rate", value_name = "F", requires = "density")]
     pub growth_rate: Option<f64>,
-    /// Axes of the model's Cartesian coordinates (when the file does not say): supergalactic or galactic.
-    #[arg(long = "field-axes", value_enum, value_name = "AXES")]
-    pub field_axes: Option<AxesArg>,
+    /// Cartesian axes of the vector flags and of a model file that does not say its own:
+    /// supergalactic (default) or galactic.
+    #[arg(long = "axes", value_enum, value_name = "AXES")]
+    pub axes: Option<AxesArg>,
     /// Length unit of the model's coordinates (when the file does not say): mpc or mpc-over-h.
     #[arg(long = "field-unit", value_enum, value_name = "UNIT")]
     pub field_unit: Option<UnitArg>,
-    /// Analytic uniform bulk flow, km/s, on the model axes.
+    /// Analytic uniform flow, km/s, as VX,VY,VZ on the --axes.
     #[arg(
-        long,
+        long = "uniform-flow",
         value_name = "VX,VY,VZ",
         value_parser = super::options::parse_vector3,
         allow_hyphen_values = true
     )]
-    pub bulk: Option<[f64; 3]>,
+    pub uniform_flow: Option<[f64; 3]>,
     /// Analytic linear infall onto a centre: NAME,X,Y,Z,DELTA0,R_SCALE (positions in the model
     /// length unit); repeat for several centres.
     #[arg(long, value_name = "NAME,X,Y,Z,DELTA0,R", allow_hyphen_values = true)]
@@ -91,7 +92,7 @@ pub struct ModelFlags {
     /// density contrast and β = f/b is its only scale (no growth rate inside).
     #[arg(long, value_name = "B", allow_negative_numbers = true)]
     pub beta: Option<f64>,
-    /// External dipole V_ext added to the model, km/s, model axes.
+    /// External dipole V_ext added to the model, km/s, as VX,VY,VZ on the --axes.
     #[arg(
         long,
         value_name = "VX,VY,VZ",
@@ -115,9 +116,9 @@ impl ModelFlags {
                 BoundaryArg::Periodic => DensityBoundary::Periodic,
             }),
             growth_rate: self.growth_rate,
-            field_axes: self.field_axes.map(AxesArg::axes),
+            field_axes: self.axes.map(AxesArg::axes),
             field_unit: self.field_unit.map(UnitArg::unit),
-            bulk: self.bulk,
+            bulk: self.uniform_flow,
             infall: self
                 .infall
                 .iter()

@@ -206,12 +206,12 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
         let t = spec.bulk_flow;
         println!(
             "  bulk flow, Galactic (x, y, z): measured ({:.0} ± {:.0}, {:.0} ± {:.0}, {:.0} ± {:.0}) km/s, true ({:.0}, {:.0}, {:.0}) km/s",
-            b.v_galactic[0],
-            b.cov[0][0].sqrt(),
-            b.v_galactic[1],
-            b.cov[1][1].sqrt(),
-            b.v_galactic[2],
-            b.cov[2][2].sqrt(),
+            b.galactic.v[0],
+            b.galactic.cov[0][0].sqrt(),
+            b.galactic.v[1],
+            b.galactic.cov[1][1].sqrt(),
+            b.galactic.v[2],
+            b.galactic.cov[2][2].sqrt(),
             t[0],
             t[1],
             t[2]

@@ -16,7 +16,7 @@ use super::options::CosmologyFlags;
 /// Sample an analytic velocity model onto a grid file.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  flowsift field -o flow.fits --bulk 150,-200,80 --infall knot,40,60,-20,0.9,15 --cells 64 --spacing 8\n  flowsift field -o demo-data/lantern_field.fits --scenario lantern"
+    after_help = "Examples:\n  flowsift field -o flow.fits --uniform-flow 150,-200,80 --infall knot,40,60,-20,0.9,15 --cells 64 --spacing 8\n  flowsift field -o demo-data/lantern_field.fits --scenario lantern"
 )]
 pub struct FieldArgs {
     /// Output: our FITS field file (.fits, .fits.gz) or a table x, y, z, vx, vy, vz (.csv, .parquet).
@@ -25,14 +25,14 @@ pub struct FieldArgs {
     /// Start from a named scenario: lantern (the demo survey's flow).
     #[arg(long, value_name = "NAME")]
     pub scenario: Option<String>,
-    /// Uniform flow, km/s, on the field axes.
+    /// Uniform flow, km/s, as VX,VY,VZ on the --axes.
     #[arg(
-        long,
+        long = "uniform-flow",
         value_name = "VX,VY,VZ",
         value_parser = super::options::parse_vector3,
         allow_hyphen_values = true
     )]
-    pub bulk: Option<[f64; 3]>,
+    pub uniform_flow: Option<[f64; 3]>,
     /// Linear infall onto a centre: NAME,X,Y,Z,DELTA0,R_SCALE; repeat for several.
     #[arg(long, value_name = "NAME,X,Y,Z,DELTA0,R", allow_hyphen_values = true)]
     pub infall: Vec<String>,
@@ -43,8 +43,8 @@ pub struct FieldArgs {
     #[arg(long, value_name = "L")]
     pub spacing: Option<f64>,
     /// Axes: supergalactic (default) or galactic.
-    #[arg(long = "field-axes", value_enum, value_name = "AXES")]
-    pub field_axes: Option<AxesArg>,
+    #[arg(long = "axes", value_enum, value_name = "AXES")]
+    pub axes: Option<AxesArg>,
     /// Length unit: mpc (default) or mpc-over-h.
     #[arg(long = "field-unit", value_enum, value_name = "UNIT")]
     pub field_unit: Option<UnitArg>,
@@ -59,7 +59,7 @@ pub fn run(a: FieldArgs) -> anyhow::Result<()> {
     let plan = plan_field(FieldOrder {
         output: a.output.clone(),
         scenario: a.scenario.clone(),
-        bulk: a.bulk,
+        bulk: a.uniform_flow,
         infall: a
             .infall
             .iter()
@@ -68,7 +68,7 @@ pub fn run(a: FieldArgs) -> anyhow::Result<()> {
             .map_err(|e| anyhow!(e))?,
         cells: a.cells,
         spacing: a.spacing,
-        axes: a.field_axes.map(AxesArg::axes),
+        axes: a.axes.map(AxesArg::axes),
         unit: a.field_unit.map(UnitArg::unit),
         flags: RunConfig {
             cosmology: a.cosmology.choice(),

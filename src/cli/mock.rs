@@ -14,7 +14,7 @@ use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
 /// Make a mock catalogue.
 #[derive(Debug, Args)]
 #[command(
-    after_help = "Examples:\n  flowsift mock -o mock.csv --n 5000 --seed 3 --bulk-flow 200,-100,50 --sigma-v 300 --z-max 0.08 --distance-error 0.2\n  flowsift mock -o demo-data/lantern_survey.fits --scenario lantern"
+    after_help = "Examples:\n  flowsift mock -o mock.csv --n 5000 --seed 3 --uniform-flow 200,-100,50 --sigma-v 300 --z-max 0.08 --distance-error 0.2\n  flowsift mock -o demo-data/lantern_survey.fits --scenario lantern"
 )]
 pub struct MockArgs {
     /// Output catalogue (format by extension).
@@ -29,14 +29,15 @@ pub struct MockArgs {
     /// Seed of the random streams.
     #[arg(long, value_name = "S", allow_negative_numbers = true)]
     pub seed: Option<u64>,
-    /// Bulk flow, km/s, Galactic Cartesian (x → l = 0, y → l = 90°, z → NGP).
+    /// Uniform flow added to every object, km/s, as VX,VY,VZ on the --axes (default
+    /// supergalactic).
     #[arg(
-        long = "bulk-flow",
+        long = "uniform-flow",
         value_name = "VX,VY,VZ",
         value_parser = super::options::parse_vector3,
         allow_hyphen_values = true
     )]
-    pub bulk_flow: Option<[f64; 3]>,
+    pub uniform_flow: Option<[f64; 3]>,
     /// Random radial velocity dispersion, km/s.
     #[arg(long = "sigma-v", value_name = "KM_S", allow_negative_numbers = true)]
     pub sigma_v: Option<f64>,
@@ -75,9 +76,10 @@ pub struct MockArgs {
     /// table) at each object's true position.
     #[arg(long, value_name = "FIELD")]
     pub field: Option<PathBuf>,
-    /// Axes of the field (when the file does not say).
-    #[arg(long = "field-axes", value_enum, value_name = "AXES")]
-    pub field_axes: Option<super::correct::AxesArg>,
+    /// Cartesian axes of --uniform-flow and of a --field file that does not say its own:
+    /// supergalactic (default) or galactic.
+    #[arg(long = "axes", value_enum, value_name = "AXES")]
+    pub axes: Option<super::correct::AxesArg>,
     /// Length unit of the field (when the file does not say).
     #[arg(long = "field-unit", value_enum, value_name = "UNIT")]
     pub field_unit: Option<super::correct::UnitArg>,
@@ -105,7 +107,8 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
         overrides: MockOverrides {
             n: a.n,
             seed: a.seed,
-            bulk_flow: a.bulk_flow,
+            uniform_flow: a.uniform_flow,
+            axes: a.axes.map(super::correct::AxesArg::axes),
             sigma_v: a.sigma_v,
             z_min: a.z_min,
             z_max: a.z_max,
@@ -117,7 +120,7 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
         },
         model: ModelChoice {
             field: a.field.as_ref().map(|p| p.display().to_string()),
-            field_axes: a.field_axes.map(super::correct::AxesArg::axes),
+            field_axes: a.axes.map(super::correct::AxesArg::axes),
             field_unit: a.field_unit.map(super::correct::UnitArg::unit),
             beta: a.field_beta,
             ..Default::default()

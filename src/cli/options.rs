@@ -414,12 +414,12 @@ pub struct OutlierFlags {
     /// Flag η outside LOW,HIGH (default -0.6,0.6).
     #[arg(id = "outlier_eta_range", long = "eta-range", value_name = "LOW,HIGH", value_parser = parse_range, allow_hyphen_values = true, help_heading = "Outliers")]
     pub eta_range: Option<[f64; 2]>,
-    /// Residual space: eta (default) or velocity.
+    /// Quantity whose residuals are tested: eta (default) or velocity.
     #[arg(
-        id = "outlier_space",
-        long = "outlier-space",
+        id = "outlier_quantity",
+        long = "outlier-quantity",
         value_enum,
-        value_name = "SPACE",
+        value_name = "QUANTITY",
         help_heading = "Outliers"
     )]
     pub space: Option<SpaceArg>,
@@ -457,7 +457,7 @@ impl OutlierFlags {
             neighbour_threshold: self.neighbour_threshold,
             max_speed: self.max_speed,
             eta_range: self.eta_range,
-            space: self.space.map(SpaceArg::space),
+            quantity: self.space.map(SpaceArg::space),
             sigma_star: self.sigma_star,
         }
     }
@@ -466,12 +466,12 @@ impl OutlierFlags {
 /// Bulk-flow flags (stand-alone `bulkflow`, and `velocities --bulk-flow`).
 #[derive(Debug, Clone, Default, Args)]
 pub struct BulkFlowFlags {
-    /// Fit space: eta (default) or velocity.
+    /// Quantity the flow is fitted to: eta (default) or velocity.
     #[arg(
-        id = "flow_space",
-        long = "flow-space",
+        id = "flow_quantity",
+        long = "flow-quantity",
         value_enum,
-        value_name = "SPACE",
+        value_name = "QUANTITY",
         help_heading = "Bulk flow"
     )]
     pub space: Option<SpaceArg>,
@@ -523,9 +523,10 @@ pub struct BulkFlowFlags {
 impl BulkFlowFlags {
     pub fn choice(&self) -> flowsift::settings::BulkFlowChoice {
         flowsift::settings::BulkFlowChoice {
-            space: self.space.map(SpaceArg::space),
+            quantity: self.space.map(SpaceArg::space),
             sigma_star: self.sigma_star,
-            skip_outliers: self.include_outliers.then_some(false),
+            include_outliers: self.include_outliers.then_some(true),
+            legacy_skip_outliers: None,
             lcdm: self.no_lcdm.then_some(false),
             sigma8: self.sigma8,
             omega_b: self.omega_b,

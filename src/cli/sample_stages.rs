@@ -149,21 +149,22 @@ pub fn bulkflow(a: BulkFlowArgs) -> anyhow::Result<()> {
         println!("{}", serde_json::to_string_pretty(&report)?);
         return Ok(());
     }
-    let v = report.v_galactic;
+    let v = report.galactic.v;
+    let cov = report.galactic.cov;
     println!(
-        "bulk flow of {} ({} objects, {} space)",
+        "bulk flow of {} ({} objects, fitted to {})",
         a.input.display(),
-        report.n_used,
-        report.fit_space.name()
+        report.fit.n_used,
+        report.fit.quantity.name()
     );
     println!(
         "  Galactic (x, y, z): ({:.0} ± {:.0}, {:.0} ± {:.0}, {:.0} ± {:.0}) km/s",
         v[0],
-        report.cov[0][0].sqrt(),
+        cov[0][0].sqrt(),
         v[1],
-        report.cov[1][1].sqrt(),
+        cov[1][1].sqrt(),
         v[2],
-        report.cov[2][2].sqrt()
+        cov[2][2].sqrt()
     );
     println!(
         "  amplitude {:.0} ± {:.0} km/s towards l = {:.1}°, b = {:.1}°",
@@ -176,8 +177,8 @@ pub fn bulkflow(a: BulkFlowArgs) -> anyhow::Result<()> {
     );
     println!(
         "  σ_* = {:.0} km/s ({})",
-        report.sigma_star,
-        if report.sigma_star_fitted {
+        report.fit.sigma_star,
+        if report.fit.sigma_star_fitted {
             "fitted"
         } else {
             "fixed"

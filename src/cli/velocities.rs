@@ -70,6 +70,10 @@ pub struct VelocitiesArgs {
         allow_negative_numbers = true
     )]
     pub seed: Option<u64>,
+    /// Add v_pec_wf and v_pec_wf_err: the estimator of Watkins & Feldman (2015), for comparison
+    /// with the exact v_pec.
+    #[arg(long = "watkins-feldman", help_heading = "Errors")]
+    pub watkins_feldman: bool,
     /// Correct distances for homogeneous Malmquist bias before deriving velocities.
     #[arg(long, help_heading = "Sample stages")]
     pub malmquist: bool,
@@ -135,6 +139,9 @@ impl VelocitiesArgs {
             errors: ErrorChoice {
                 monte_carlo: self.monte_carlo,
                 seed: self.seed,
+            },
+            comparisons: flowsift::settings::ComparisonChoice {
+                watkins_feldman: self.watkins_feldman.then_some(true),
             },
             malmquist: (self.malmquist || self.malmquist_profile.is_some()).then(|| {
                 MalmquistChoice {
@@ -275,8 +282,8 @@ pub fn print_summary(s: &RunSummary, json: bool) -> anyhow::Result<()> {
     }
     if let Some((b, p)) = &s.bulk_flow {
         println!(
-            "bulk flow: {:.0} ± {:.0} km/s towards l = {:.1}°, b = {:.1}° ({} objects, {} space, σ_* = {:.0} km/s) → {}",
-            b.amplitude, b.amplitude_err, b.l, b.b, b.n_used, b.fit_space.name(), b.sigma_star, p.display()
+            "bulk flow: {:.0} ± {:.0} km/s towards l = {:.1}°, b = {:.1}° ({} objects, fitted to {}, σ_* = {:.0} km/s) → {}",
+            b.amplitude, b.amplitude_err, b.l, b.b, b.fit.n_used, b.fit.quantity.name(), b.fit.sigma_star, p.display()
         );
         if let Some(l) = &b.lcdm {
             println!(

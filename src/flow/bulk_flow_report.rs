@@ -72,12 +72,9 @@ pub struct LcdmComparison {
 /// `record`; read back by `catalogue::bulk_flow_file`).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct BulkFlowReport {
-    /// Flow in Galactic Cartesian axes (x → l = 0, y → l = 90°, z → NGP), km/s.
-    #[serde(deserialize_with = "null_as_nan::vector")]
-    pub v_galactic: [f64; 3],
-    /// Noise covariance, Galactic axes, (km/s)².
-    #[serde(deserialize_with = "null_as_nan::matrix")]
-    pub cov: [[f64; 3]; 3],
+    /// Flow and its noise covariance in Galactic Cartesian axes (x → l = 0, y → l = 90°,
+    /// z → NGP), km/s and (km/s)².
+    pub galactic: AxesReport,
     #[serde(deserialize_with = "null_as_nan::number")]
     pub amplitude: f64,
     /// First-order error of the amplitude (the amplitude itself is biased high when it is
@@ -91,15 +88,25 @@ pub struct BulkFlowReport {
     pub b: f64,
     pub supergalactic: AxesReport,
     pub equatorial: AxesReport,
+    /// What was fitted and how well.
+    pub fit: FitSummary,
+    pub lcdm: Option<LcdmComparison>,
+    pub cautions: Vec<String>,
+}
+
+/// The fit behind a bulk-flow report.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FitSummary {
+    /// The quantity fitted: η (default) or the radial velocity.
+    pub quantity: FitSpace,
+    pub n_used: usize,
+    /// Intrinsic dispersion σ_*, km/s.
     #[serde(deserialize_with = "null_as_nan::number")]
     pub sigma_star: f64,
     pub sigma_star_fitted: bool,
-    pub n_used: usize,
-    pub fit_space: FitSpace,
+    /// χ² of the fitted flow's residuals.
     #[serde(deserialize_with = "null_as_nan::number")]
     pub chi2: f64,
-    pub lcdm: Option<LcdmComparison>,
-    pub cautions: Vec<String>,
 }
 
 fn rotate<A: SkyFrame, B: SkyFrame>(
@@ -161,8 +168,8 @@ pub fn bulk_flow(
     };
     let mut cautions = vec![
         format!(
-            "Flow fitted in {} space to {} objects{}; σ_* {} = {:.0} km/s.",
-            space.name(),
+            "Flow fitted to {} of {} objects{}; σ_* {} = {:.0} km/s.",
+            if space == FitSpace::Eta { "η" } else { "the radial velocity" },
             fit.n_used,
             if space == FitSpace::Eta { " (κ = ∂η/∂v from the cosmology)" } else { "" },
             if fit.sigma_star_fitted { "fitted" } else { "fixed" },
@@ -174,19 +181,23 @@ pub fn bulk_flow(
         cautions.push("Velocities from log-normal distances have skewed errors; the η fit is the less biased choice.".into());
     }
     Ok(BulkFlowReport {
-        v_galactic: fit.v,
-        cov: fit.cov,
+        galactic: AxesReport {
+            v: fit.v,
+            cov: fit.cov,
+        },
         amplitude,
         amplitude_err,
         l,
         b,
         supergalactic,
         equatorial,
-        sigma_star: fit.sigma_star,
-        sigma_star_fitted: fit.sigma_star_fitted,
-        n_used: fit.n_used,
-        fit_space: space,
-        chi2: fit.chi2,
+        fit: FitSummary {
+            quantity: space,
+            n_used: fit.n_used,
+            sigma_star: fit.sigma_star,
+            sigma_star_fitted: fit.sigma_star_fitted,
+            chi2: fit.chi2,
+        },
         lcdm,
         cautions,
     })

@@ -57,7 +57,7 @@ pub struct Correction {
     pub z_cos_model: f64,
     pub z_cos_model_err: f64,
     /// Distance-modulus uncertainty implied by z_cos_model_err, mag.
-    pub mu_pec_err: f64,
+    pub mu_err_z_cos: f64,
     /// Self-consistent comoving distance, in the model's length unit.
     pub r: f64,
     pub flag: FieldFlag,
@@ -103,7 +103,7 @@ pub fn correct_object(
         v_model: f64::NAN,
         z_cos_model: f64::NAN,
         z_cos_model_err: f64::NAN,
-        mu_pec_err: f64::NAN,
+        mu_err_z_cos: f64::NAN,
         r: f64::NAN,
         flag,
         solutions: 0,
@@ -177,13 +177,13 @@ pub fn correct_object(
     let feedback = 1.0 / (1.0 - dzc_dv * du_dr * dd_dz);
     let z_cos_model_err =
         feedback * ((dzc_dv * los.sigma_v).powi(2) + (dzc_dzcmb * los.z_err).powi(2)).sqrt();
-    let mu_pec_err = mu_derivative(cosmology, z_cos, los.z_helio, los.z_cmb, s.convention).abs()
+    let mu_err_z_cos = mu_derivative(cosmology, z_cos, los.z_helio, los.z_cmb, s.convention).abs()
         * z_cos_model_err;
     Correction {
         v_model: u,
         z_cos_model: z_cos,
         z_cos_model_err,
-        mu_pec_err,
+        mu_err_z_cos,
         r,
         flag: if roots.len() > 1 {
             FieldFlag::MultipleSolutions

@@ -37,7 +37,7 @@ impl OutlierSettings {
             neighbour_threshold: c.neighbour_threshold.unwrap_or_default(),
             max_speed: c.max_speed,
             eta_range: c.eta_range.unwrap_or_default(),
-            space: c.space.unwrap_or_default(),
+            space: c.quantity.unwrap_or_default(),
             sigma_star: c.sigma_star.map(SigmaStar::Fixed).unwrap_or(SigmaStar::Fit),
         };
         for (name, v) in [

@@ -143,7 +143,7 @@ fn default_outlier_offset() -> [f64; 2] {
 }
 
 impl MockSpec {
-    /// The invented demonstration survey, the "Lantern Deep Field Survey": 3000 objects,
+    /// The invented demonstration survey, the "Lantern Nearby-Sky Survey": 3000 objects,
     /// seed 20261201, a 250 km/s bulk flow towards l = 300°, b = 20°, σ_v = 250 km/s,
     /// 0.003 < z_cos < 0.1, no objects at |b| < 10°, σ_z = 5×10⁻⁵ (15 km/s), 75 %
     /// Tully–Fisher-like (20 % distances) and 25 % SN Ia-like (0.15 mag), 1.5 % of objects
@@ -182,7 +182,7 @@ impl MockSpec {
 
     pub fn demo_survey() -> Self {
         Self {
-            name: "Lantern Deep Field Survey".into(),
+            name: "Lantern Nearby-Sky Survey".into(),
             n: 3000,
             seed: 20_261_201,
             bulk_flow: bulk_flow_towards(250.0, 300.0, 20.0),

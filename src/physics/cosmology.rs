@@ -184,7 +184,7 @@ impl CosmologyParams {
 /// Named parameter sets.
 pub const PRESETS: &[Preset] = &[
     Preset {
-        name: "common",
+        name: "concordance",
         params: CosmologyParams {
             h0: 70.0,
             omega_m: 0.3,
@@ -193,7 +193,7 @@ pub const PRESETS: &[Preset] = &[
             w0: -1.0,
             wa: 0.0,
         },
-        source: "common practice: flat ΛCDM, H0 = 70 km/s/Mpc, Ω_m = 0.3 (round numbers, not a measurement)",
+        source: "the concordance model of common practice: flat ΛCDM, H0 = 70 km/s/Mpc, Ω_m = 0.3 (round numbers, not a measurement)",
     },
     Preset {
         name: "planck2018",
@@ -210,8 +210,15 @@ pub const PRESETS: &[Preset] = &[
     },
 ];
 
-/// Look up a preset by name.
+/// Former preset names, still read from the records of older outputs and run files.
+const FORMER_PRESET_NAMES: &[(&str, &str)] = &[("common", "concordance")];
+
+/// Look up a preset by name (a former name finds its successor).
 pub fn find_preset(name: &str) -> Result<&'static Preset, String> {
+    let name = FORMER_PRESET_NAMES
+        .iter()
+        .find(|(old, _)| old.eq_ignore_ascii_case(name))
+        .map_or(name, |(_, new)| *new);
     PRESETS
         .iter()
         .find(|p| p.name.eq_ignore_ascii_case(name))

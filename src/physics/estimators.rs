@@ -143,6 +143,8 @@ pub struct PeculiarVelocity {
     /// log10(D_C(z_cmb)/D_C(z_cos)).
     pub eta: f64,
     pub eta_err: f64,
+    /// First-order relative error of `d_l` from the distance error alone, σ(D_L)/D_L.
+    pub d_l_rel_err: f64,
 }
 
 /// Solve for z_cos and the partial derivatives ∂z_cos/∂q (q the distance value),
@@ -404,6 +406,17 @@ pub fn peculiar_velocity(
     let eta_err = ((deta_dzh * obs.z_err).powi(2) + (deta_dq * obs.distance.error).powi(2)).sqrt();
     let z_cos_err =
         ((dzcos_dzh * obs.z_err).powi(2) + (sol.dz_dq * obs.distance.error).powi(2)).sqrt();
+    // σ(D_L)/D_L: direct for μ (D_L ∝ 10^(μ/5)) and D_L; otherwise through z_cos, with
+    // dD_L/dz = D_M + (1 + z) dD_M/dz for D_L = (1 + z) D_M.
+    let d_l_rel_err = match obs.distance.kind {
+        DistanceKind::Mu => LN10 / 5.0 * obs.distance.error,
+        DistanceKind::Dl => obs.distance.error / obs.distance.value,
+        _ => {
+            let dm = cosmo.transverse_from_comoving(sol.d_c);
+            let dlnl_dz = 1.0 / zcos1 + cosmo.transverse_derivative(sol.d_c) * sol.dc_z / dm;
+            (dlnl_dz * sol.dz_dq * obs.distance.error).abs()
+        }
+    };
     Ok(PeculiarVelocity {
         z_cos: sol.z_cos,
         z_cos_err,
@@ -414,6 +427,7 @@ pub fn peculiar_velocity(
         d_l: sol.d_l,
         eta,
         eta_err,
+        d_l_rel_err,
     })
 }
 
@@ -439,6 +453,30 @@ pub fn watkins_feldman_velocity(cosmo: &Cosmology, z_cmb: Redshift<Cmb>, d_l_mpc
         z * (1.0 + 0.5 * (1.0 - q0) * z - (1.0 - q0 - 3.0 * q0 * q0 + j0 - omega_k) * z * z / 6.0);
     let cz = C_KM_S * z_mod;
     cz / (1.0 + z_mod) * (cz / (cosmo.params().h0 * d_l_mpc)).ln()
+}
+
+/// First-order error of [`watkins_feldman_velocity`], from the error of the CMB-frame
+/// redshift and the relative error of the luminosity distance, taken as independent:
+/// with A = c z_mod/(1 + z_mod) and L = ln(c z_mod/(H0 d)), v = A·L, so
+/// ∂v/∂ln d = −A and ∂v/∂z = [c L/(1 + z_mod)² + A/z_mod] dz_mod/dz, with
+/// dz_mod/dz = 1 + (1 − q0) z − ½(1 − q0 − 3q0² + j0 − Ω_k) z² (differentiating the form
+/// above; no term is taken from the paper beyond it).
+pub fn watkins_feldman_error(
+    cosmo: &Cosmology,
+    z_cmb: Redshift<Cmb>,
+    z_cmb_err: f64,
+    d_l_mpc: f64,
+    d_l_rel_err: f64,
+) -> f64 {
+    let (q0, j0) = cosmo.params().deceleration_jerk();
+    let z = z_cmb.value();
+    let c3 = 1.0 - q0 - 3.0 * q0 * q0 + j0 - cosmo.params().omega_k();
+    let z_mod = z * (1.0 + 0.5 * (1.0 - q0) * z - c3 * z * z / 6.0);
+    let dzm_dz = 1.0 + (1.0 - q0) * z - 0.5 * c3 * z * z;
+    let a = C_KM_S * z_mod / (1.0 + z_mod);
+    let l = (C_KM_S * z_mod / (cosmo.params().h0 * d_l_mpc)).ln();
+    let dv_dz = (C_KM_S * l / (1.0 + z_mod).powi(2) + a / z_mod) * dzm_dz;
+    ((dv_dz * z_cmb_err).powi(2) + (a * d_l_rel_err).powi(2)).sqrt()
 }
 
 #[cfg(test)]
@@ -613,5 +651,55 @@ mod tests {
         let dl = c.luminosity_distance(z).unwrap();
         let v = watkins_feldman_velocity(&c, Redshift::new(z).unwrap(), dl);
         assert!(v.abs() < 5.0, "{v}");
+    }
+
+    /// The analytic error of the Watkins–Feldman estimate against central finite differences
+    /// of the estimator itself (independent of the derivative written out above).
+    #[test]
+    fn watkins_feldman_error_matches_finite_differences() {
+        let c = cosmo();
+        let (z, sz, dl, rel) = (0.05, 1.5e-4, 200.0, 0.2);
+        let v = |zz: f64, d: f64| watkins_feldman_velocity(&c, Redshift::new(zz).unwrap(), d);
+        let hz = 1e-6;
+        let dv_dz = (v(z + hz, dl) - v(z - hz, dl)) / (2.0 * hz);
+        let hl: f64 = 1e-6;
+        let dv_dlnd = (v(z, dl * hl.exp()) - v(z, dl * (-hl).exp())) / (2.0 * hl);
+        let numeric = ((dv_dz * sz).powi(2) + (dv_dlnd * rel).powi(2)).sqrt();
+        let analytic = watkins_feldman_error(&c, Redshift::new(z).unwrap(), sz, dl, rel);
+        assert!(
+            (analytic / numeric - 1.0).abs() < 1e-6,
+            "{analytic} vs {numeric}"
+        );
+    }
+
+    /// σ(D_L)/D_L of a μ input is ln10/5 σ_μ (D_L = 10^(μ/5 − 5) Mpc, the definition of μ);
+    /// of a D_L input, σ/D_L.
+    #[test]
+    fn luminosity_distance_relative_error_by_kind() {
+        let c = cosmo();
+        let z = 0.03;
+        let mu = 5.0 * c.luminosity_distance(z).unwrap().log10() + 25.0;
+        let obs = |kind, value, error| Observation {
+            z_helio: Redshift::new(z).unwrap(),
+            z_cmb: Redshift::new(z).unwrap(),
+            z_err: 0.0,
+            distance: Distance { kind, value, error },
+        };
+        let opts = EstimatorOptions::default();
+        let pv = peculiar_velocity(&c, &obs(DistanceKind::Mu, mu, 0.4), &opts).unwrap();
+        assert!((pv.d_l_rel_err - LN10 / 5.0 * 0.4).abs() < 1e-12);
+        let dl = c.luminosity_distance(z).unwrap();
+        let pv = peculiar_velocity(&c, &obs(DistanceKind::Dl, dl, 0.1 * dl), &opts).unwrap();
+        assert!((pv.d_l_rel_err - 0.1).abs() < 1e-12);
+        // A D_C input: D_L = (1 + z) D_C in a flat model, so σ(D_L)/D_L =
+        // (1 + D_C/((1 + z) dD_C/dz)) σ(D_C)/D_C, to first order.
+        let dc = c.comoving_distance(z).unwrap();
+        let pv = peculiar_velocity(&c, &obs(DistanceKind::Dc, dc, 0.1 * dc), &opts).unwrap();
+        let expected = (1.0 + dc / ((1.0 + z) * c.comoving_distance_derivative(z))) * 0.1;
+        assert!(
+            (pv.d_l_rel_err / expected - 1.0).abs() < 1e-6,
+            "{}",
+            pv.d_l_rel_err
+        );
     }
 }

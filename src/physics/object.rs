@@ -7,8 +7,8 @@ use serde::Serialize;
 use super::constants::C_KM_S;
 use super::cosmology::{Cosmology, LengthUnit};
 use super::estimators::{
-    low_redshift_velocity, peculiar_velocity, watkins_feldman_velocity, Distance, DistanceKind,
-    EstimatorOptions, Observation,
+    low_redshift_velocity, peculiar_velocity, watkins_feldman_error, watkins_feldman_velocity,
+    Distance, DistanceKind, EstimatorOptions, Observation,
 };
 use super::redshift::{Cmb, Heliocentric, Redshift};
 use super::restframe::{legacy_additive, Boost, BoostMethod};
@@ -70,6 +70,8 @@ pub struct ObjectResult {
     pub v_pec_low_z: f64,
     /// Watkins & Feldman (2015) estimator (comparison only).
     pub v_pec_watkins_feldman: f64,
+    /// Its first-order error (redshift and distance errors; no σ_*).
+    pub v_pec_watkins_feldman_err: f64,
 }
 
 /// Derive everything for one object.
@@ -156,6 +158,11 @@ pub fn evaluate_with(
     };
     let pv = peculiar_velocity(ctx.cosmology, &obs, &ctx.options)?;
     let [sgx, sgy, sgz] = sg.at_distance(pv.d_c * factor);
+    // σ(z_cmb): the exact boost scales 1 + z, the additive one shifts z.
+    let z_cmb_err = match ctx.options.boost {
+        BoostMethod::Exact => input.z_err * z_cmb.one_plus() / z_helio.one_plus(),
+        BoostMethod::LegacyAdditive => input.z_err,
+    };
     let measured_d = match distance.kind {
         DistanceKind::Dc => distance.value,
         _ => pv.d_l,
@@ -182,6 +189,13 @@ pub fn evaluate_with(
         v_rec_err: C_KM_S * pv.z_cos_err / ctx.cosmology.efunc(pv.z_cos),
         v_pec_low_z: low_redshift_velocity(ctx.cosmology.params().h0, z_cmb, measured_d),
         v_pec_watkins_feldman: watkins_feldman_velocity(ctx.cosmology, z_cmb, pv.d_l),
+        v_pec_watkins_feldman_err: watkins_feldman_error(
+            ctx.cosmology,
+            z_cmb,
+            z_cmb_err,
+            pv.d_l,
+            pv.d_l_rel_err,
+        ),
     })
 }
 

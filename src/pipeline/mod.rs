@@ -2,6 +2,7 @@
 //! out. Rows are processed in chunks on rayon's pool, each chunk writing straight into its
 //! slice of every output column, so no per-row allocation happens in the hot loop.
 
+pub mod comparison;
 mod error;
 pub mod given_frames;
 pub mod inputs;

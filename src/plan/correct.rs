@@ -55,7 +55,7 @@ impl CorrectPlan {
 /// Check the order and resolve it.
 pub fn plan_correct(order: CorrectOrder) -> Result<CorrectPlan, super::PlanError> {
     if order.model.is_empty() {
-        return Err("give a velocity model: --field FILE, --density FILE, --bulk VX,VY,VZ, --infall … or --external VX,VY,VZ".into());
+        return Err("give a velocity model: --field FILE, --density FILE, --uniform-flow VX,VY,VZ, --infall … or --external VX,VY,VZ".into());
     }
     if let Some(s) = order.model.sigma_v {
         if !(s.is_finite() && s >= 0.0) {

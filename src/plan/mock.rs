@@ -22,8 +22,10 @@ pub const MAX_FIELD_CELLS: usize = 1024;
 pub struct MockOverrides {
     pub n: Option<usize>,
     pub seed: Option<u64>,
-    /// Galactic Cartesian, km/s.
-    pub bulk_flow: Option<[f64; 3]>,
+    /// Uniform flow, km/s, on `axes`.
+    pub uniform_flow: Option<[f64; 3]>,
+    /// Axes of `uniform_flow` (default supergalactic, as for `field` and `correct`).
+    pub axes: Option<FieldAxes>,
     pub sigma_v: Option<f64>,
     pub z_min: Option<f64>,
     pub z_max: Option<f64>,
@@ -76,7 +78,11 @@ pub fn plan_mock(order: MockOrder) -> Result<MockPlan, super::PlanError> {
         spec.n = n;
     }
     spec.seed = o.seed.unwrap_or(spec.seed);
-    spec.bulk_flow = o.bulk_flow.unwrap_or(spec.bulk_flow);
+    if let Some(v) = o.uniform_flow {
+        // The spec holds its flow in Galactic axes; the flag is on the run's axes.
+        let axes = o.axes.unwrap_or(FieldAxes::Supergalactic);
+        spec.bulk_flow = axes.to_galactic(&crate::physics::sky::SkyRotations::default(), v);
+    }
     spec.sigma_v = o.sigma_v.unwrap_or(spec.sigma_v);
     spec.z_min = o.z_min.unwrap_or(spec.z_min);
     spec.z_max = o.z_max.unwrap_or(spec.z_max);

@@ -427,6 +427,14 @@ fn diagonal(m: &[[f64; 3]; 3]) -> [f64; 3] {
     [m[0][0], m[1][1], m[2][2]]
 }
 
+/// The fitted quantity in words.
+fn quantity_words(q: crate::settings::FitSpace) -> &'static str {
+    match q {
+        crate::settings::FitSpace::Eta => "η",
+        crate::settings::FitSpace::Velocity => "radial velocities",
+    }
+}
+
 fn bulkflow_section(h: &mut String, bulk: Option<&BulkFlowReport>) {
     let Some(b) = bulk else {
         return;
@@ -435,16 +443,16 @@ fn bulkflow_section(h: &mut String, bulk: Option<&BulkFlowReport>) {
     // serde_json writes a number that is not finite as null: such a number is left out.
     let finite = |v: f64| v.is_finite().then_some(v);
     let mut intro = format!(
-        "Maximum-likelihood fit to {} objects in {} space",
-        b.n_used,
-        esc(b.fit_space.name())
+        "Maximum-likelihood fit of {} objects' {}",
+        b.fit.n_used,
+        esc(quantity_words(b.fit.quantity))
     );
-    if let Some(s) = finite(b.sigma_star) {
+    if let Some(s) = finite(b.fit.sigma_star) {
         let _ = write!(
             intro,
             ", σ_* = {} km/s ({})",
             fixed(s, 0),
-            if b.sigma_star_fitted {
+            if b.fit.sigma_star_fitted {
                 "fitted"
             } else {
                 "fixed"
@@ -504,8 +512,8 @@ fn bulkflow_section(h: &mut String, bulk: Option<&BulkFlowReport>) {
     table(
         h,
         "Galactic Cartesian components",
-        b.v_galactic,
-        diagonal(&b.cov),
+        b.galactic.v,
+        diagonal(&b.galactic.cov),
         ["x (l = 0°, b = 0°)", "y (l = 90°, b = 0°)", "z (b = 90°)"],
         rms,
     );

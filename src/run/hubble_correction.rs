@@ -42,7 +42,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
     let resolved = &shared.cosmology;
     let frames = &shared.frames;
     let (model, model_description) = build_model(&plan.model, &resolved.params)?.ok_or(
-        "give a velocity model: --field FILE, --bulk VX,VY,VZ, --infall … or --external VX,VY,VZ",
+        "give a velocity model: --field FILE, --uniform-flow VX,VY,VZ, --infall … or --external VX,VY,VZ",
     )?;
     let options = ReadOptions {
         hdu: plan.config().input.hdu.clone(),
@@ -204,7 +204,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
         ("v_model", col(|c| c.v_model)),
         ("z_cos_model", col(|c| c.z_cos_model)),
         ("z_cos_model_err", col(|c| c.z_cos_model_err)),
-        ("mu_pec_err", col(|c| c.mu_pec_err)),
+        ("mu_err_z_cos", col(|c| c.mu_err_z_cos)),
         ("field_distance", col(|c| c.r)),
     ];
     let mut frame = table.frame.clone();
@@ -270,7 +270,7 @@ pub fn run_correct(plan: &CorrectPlan) -> Result<CorrectSummary, super::RunError
     cautions.extend([
         format!("Velocity model: {model_description}."),
         format!(
-            "z_cos_model removes the model's radial velocity at the self-consistent position by exact composition; z_cos_model_err includes σ_v = {} km/s and the redshift error; mu_pec_err is the distance-modulus error it implies ({} convention).",
+            "z_cos_model removes the model's radial velocity at the self-consistent position by exact composition; z_cos_model_err includes σ_v = {} km/s and the redshift error; mu_err_z_cos is the distance-modulus error it implies ({} convention).",
             model.sigma_v,
             convention.name()
         ),

@@ -229,6 +229,7 @@ fn velocity_record(
     r.settings.conventions.length_unit = Some(columns.length_unit);
     r.settings.errors.monte_carlo = Some(plan.draws);
     r.settings.errors.seed = Some(plan.seed);
+    r.settings.comparisons.watkins_feldman = Some(cfg.comparisons.watkins_feldman.unwrap_or(false));
     r.settings.malmquist = cfg.malmquist.as_ref().map(|m| m.filled());
     r.settings.groups = cfg.groups.as_ref().map(|g| crate::settings::GroupChoice {
         central_column: g.central_column.clone(),
@@ -313,6 +314,12 @@ pub fn run_velocities(
     let counts_map = derived.counts();
     let rows_read = derived.status.len();
     let rows_ok = *counts_map.get(&RowStatus::Ok).unwrap_or(&0);
+    if cfg.comparisons.watkins_feldman == Some(true) {
+        let (v, e) = pipeline::comparison::watkins_feldman_columns(&ctx, &input, &derived.status);
+        extra.push(("v_pec_wf".into(), v, meta_of("v_pec_wf", "")));
+        extra.push(("v_pec_wf_err".into(), e, meta_of("v_pec_wf_err", "")));
+        notes.push("v_pec_wf: the estimator of Watkins & Feldman (2015, MNRAS 450, 1868), for comparison only; v_pec is the exact estimate.".into());
+    }
     if plan.draws >= 2 {
         extra.extend(monte_carlo_columns(
             &ctx,

@@ -367,7 +367,8 @@ pub fn bulk_flow_of_table(
     cosmology: &Cosmology,
     choice: &BulkFlowChoice,
 ) -> Result<BulkFlowReport, RunError> {
-    let sample = FlowSample::from_table(table, choice.skip_outliers.unwrap_or(true))?;
+    let include_outliers = choice.filled().include_outliers.unwrap_or(false);
+    let sample = FlowSample::from_table(table, !include_outliers)?;
     let sigma_star = choice
         .sigma_star
         .map(SigmaStar::Fixed)
@@ -392,7 +393,7 @@ pub fn bulk_flow_of_table(
     Ok(bulk_flow(
         &sample,
         cosmology,
-        choice.space.unwrap_or_default(),
+        choice.quantity.unwrap_or_default(),
         sigma_star,
         lcdm,
     )?)

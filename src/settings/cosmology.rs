@@ -11,7 +11,7 @@ use crate::physics::cosmology::{find_preset, Cosmology, CosmologyParams};
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct CosmologyChoice {
-    /// Named preset (`common`, `planck2018`). Default: `common` (flat ΛCDM, H0 = 70,
+    /// Named preset (`concordance`, `planck2018`). Default: `concordance` (flat ΛCDM, H0 = 70,
     /// Ω_m = 0.3; common practice).
     pub preset: Option<String>,
     /// Hubble constant, km/s/Mpc.
@@ -52,7 +52,7 @@ impl CosmologyChoice {
 
     /// Resolve to parameters. A flat model is kept flat when only Ω_m (or Ω_r) changes.
     pub fn resolve(&self) -> Result<ResolvedCosmology, SettingsError> {
-        let preset = find_preset(self.preset.as_deref().unwrap_or("common"))
+        let preset = find_preset(self.preset.as_deref().unwrap_or("concordance"))
             .map_err(SettingsError::UnknownName)?;
         let base = preset.params;
         let omega_m = self.omega_m.unwrap_or(base.omega_m);
@@ -98,7 +98,7 @@ impl CosmologyChoice {
     pub fn filled(&self) -> Result<CosmologyChoice, SettingsError> {
         let r = self.resolve()?;
         Ok(CosmologyChoice {
-            preset: Some(self.preset.clone().unwrap_or_else(|| "common".into())),
+            preset: Some(self.preset.clone().unwrap_or_else(|| "concordance".into())),
             h0: Some(r.params.h0),
             omega_m: Some(r.params.omega_m),
             omega_de: Some(r.params.omega_de),

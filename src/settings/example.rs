@@ -22,7 +22,7 @@ pub const EXAMPLE_CONFIG: &str = r#"# flowsift run file. Every key is optional; 
 # angle_unit = "deg"         # "deg", "rad" or "sexagesimal"
 
 [cosmology]
-# preset = "common"          # "common" (flat LCDM, H0 = 70, Om = 0.3) or "planck2018"
+# preset = "concordance"     # "concordance" (flat LCDM, H0 = 70, Om = 0.3) or "planck2018"
 # h0 = 70.0
 # omega_m = 0.3
 # omega_de = 0.7             # omit for a flat model
@@ -46,6 +46,9 @@ pub const EXAMPLE_CONFIG: &str = r#"# flowsift run file. Every key is optional; 
 # monte_carlo = 1000         # draws per object; percentiles of v_pec are added
 # seed = 1
 
+[comparisons]
+# watkins_feldman = false    # add v_pec_wf, v_pec_wf_err (Watkins & Feldman 2015)
+
 # Sample stages: each runs when its section is present (uncomment the [header]).
 # [malmquist]
 # method = "homogeneous"     # or "profile" with a density table:
@@ -61,13 +64,13 @@ pub const EXAMPLE_CONFIG: &str = r#"# flowsift run file. Every key is optional; 
 # neighbour_threshold = 3.5
 # max_speed = 5000.0         # km/s; default: no bound
 # eta_range = [-0.6, 0.6]
-# space = "eta"              # or "velocity"
+# quantity = "eta"           # or "velocity"
 # sigma_star = 250.0         # km/s; default: fitted
 
 # [bulk_flow]
-# space = "eta"              # or "velocity"
+# quantity = "eta"           # or "velocity"
 # sigma_star = 250.0         # km/s; default: fitted
-# skip_outliers = true
+# include_outliers = false  # as --include-outliers
 # lcdm = true                # expectation for the sample's window
 # sigma8 = 0.8102
 # omega_b = 0.049

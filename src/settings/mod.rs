@@ -57,6 +57,23 @@ impl ErrorChoice {
     }
 }
 
+/// Comparison columns beside the exact estimate (run file `[comparisons]`).
+#[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
+#[serde(deny_unknown_fields)]
+pub struct ComparisonChoice {
+    /// Add `v_pec_wf` and `v_pec_wf_err`, the estimator of Watkins & Feldman (2015), for
+    /// comparison with the exact v_pec (default false).
+    pub watkins_feldman: Option<bool>,
+}
+
+impl ComparisonChoice {
+    pub fn overlay(&self, other: &ComparisonChoice) -> ComparisonChoice {
+        ComparisonChoice {
+            watkins_feldman: other.watkins_feldman.or(self.watkins_feldman),
+        }
+    }
+}
+
 /// Input-file choices.
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
@@ -98,6 +115,8 @@ pub struct RunConfig {
     pub conventions: ConventionChoice,
     #[serde(default)]
     pub errors: ErrorChoice,
+    #[serde(default)]
+    pub comparisons: ComparisonChoice,
     /// Present: correct distances for Malmquist bias before deriving velocities.
     pub malmquist: Option<MalmquistChoice>,
     /// Present: combine members sharing a group identifier.
@@ -128,6 +147,7 @@ impl RunConfig {
             frame: self.frame.overlay(&flags.frame),
             conventions: self.conventions.overlay(&flags.conventions),
             errors: self.errors.overlay(&flags.errors),
+            comparisons: self.comparisons.overlay(&flags.comparisons),
             malmquist: overlay_section(&self.malmquist, &flags.malmquist, MalmquistChoice::overlay),
             groups: overlay_section(&self.groups, &flags.groups, GroupChoice::overlay),
             outliers: overlay_section(&self.outliers, &flags.outliers, OutlierChoice::overlay),

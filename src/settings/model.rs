@@ -70,11 +70,14 @@ pub struct ModelChoice {
     pub density_boundary: Option<DensityBoundary>,
     /// Growth rate f for a density grid (default Ω_m^0.55).
     pub growth_rate: Option<f64>,
-    /// Axes of the model's coordinates, when the file does not say.
+    /// Axes of the model's coordinates and vectors, when the file does not say (`--axes`;
+    /// older records call it `field_axes`).
+    #[serde(rename = "axes", alias = "field_axes")]
     pub field_axes: Option<FieldAxes>,
     /// Length unit of the model's coordinates, when the file does not say.
     pub field_unit: Option<LengthUnit>,
-    /// Uniform flow, km/s, model axes.
+    /// Uniform flow, km/s, model axes (`--uniform-flow`; older records call it `bulk`).
+    #[serde(rename = "uniform_flow", alias = "bulk")]
     pub bulk: Option<[f64; 3]>,
     /// Linear infall centres.
     pub infall: Vec<InfallChoice>,

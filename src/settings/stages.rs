@@ -111,8 +111,10 @@ pub struct OutlierChoice {
     pub max_speed: Option<f64>,
     /// Flag η outside [low, high] (default [−0.6, 0.6], a factor 4 in distance).
     pub eta_range: Option<[f64; 2]>,
-    /// Fit space for residuals: eta (default) or velocity.
-    pub space: Option<FitSpace>,
+    /// Quantity whose residuals are tested: eta (default) or velocity. (Older run files and
+    /// records call it `space`.)
+    #[serde(alias = "space")]
+    pub quantity: Option<FitSpace>,
     /// Intrinsic dispersion σ_*, km/s; absent: fitted.
     pub sigma_star: Option<f64>,
 }
@@ -125,7 +127,7 @@ impl OutlierChoice {
             neighbour_threshold: o.neighbour_threshold.or(self.neighbour_threshold),
             max_speed: o.max_speed.or(self.max_speed),
             eta_range: o.eta_range.or(self.eta_range),
-            space: o.space.or(self.space),
+            quantity: o.quantity.or(self.quantity),
             sigma_star: o.sigma_star.or(self.sigma_star),
         }
     }
@@ -135,12 +137,19 @@ impl OutlierChoice {
 #[derive(Debug, Clone, Default, PartialEq, Serialize, Deserialize, JsonSchema)]
 #[serde(deny_unknown_fields)]
 pub struct BulkFlowChoice {
-    /// Fit space: eta (default) or velocity.
-    pub space: Option<FitSpace>,
+    /// Quantity the flow is fitted to: eta (default) or velocity. (Older run files and
+    /// records call it `space`.)
+    #[serde(alias = "space")]
+    pub quantity: Option<FitSpace>,
     /// Intrinsic dispersion σ_*, km/s; absent: fitted.
     pub sigma_star: Option<f64>,
-    /// Leave out rows flagged as outliers (default true).
-    pub skip_outliers: Option<bool>,
+    /// Use rows flagged as outliers too (default false), as `--include-outliers` does.
+    pub include_outliers: Option<bool>,
+    /// The opposite key of older run files and records (`skip_outliers = true` leaves the
+    /// outliers out); read, folded into `include_outliers` by `filled`, never written.
+    #[serde(rename = "skip_outliers", default, skip_serializing)]
+    #[schemars(skip)]
+    pub legacy_skip_outliers: Option<bool>,
     /// Compute the ΛCDM expectation for the sample's window (default true).
     pub lcdm: Option<bool>,
     /// σ8 of the linear power spectrum (default: Planck 2018).
@@ -154,9 +163,10 @@ pub struct BulkFlowChoice {
 impl BulkFlowChoice {
     pub fn overlay(&self, o: &BulkFlowChoice) -> BulkFlowChoice {
         BulkFlowChoice {
-            space: o.space.or(self.space),
+            quantity: o.quantity.or(self.quantity),
             sigma_star: o.sigma_star.or(self.sigma_star),
-            skip_outliers: o.skip_outliers.or(self.skip_outliers),
+            include_outliers: o.include_outliers.or(self.include_outliers),
+            legacy_skip_outliers: o.legacy_skip_outliers.or(self.legacy_skip_outliers),
             lcdm: o.lcdm.or(self.lcdm),
             sigma8: o.sigma8.or(self.sigma8),
             omega_b: o.omega_b.or(self.omega_b),
@@ -192,23 +202,28 @@ impl OutlierChoice {
             neighbour_threshold: Some(self.neighbour_threshold.unwrap_or(3.5)),
             max_speed: self.max_speed,
             eta_range: Some(self.eta_range.unwrap_or([-0.6, 0.6])),
-            space: Some(self.space.unwrap_or_default()),
+            quantity: Some(self.quantity.unwrap_or_default()),
             sigma_star: self.sigma_star,
         }
     }
 }
 
 impl BulkFlowChoice {
-    /// Defaults: η space, σ_* fitted (`sigma_star` absent), outliers left out, the ΛCDM
+    /// Defaults: fitted to η, σ_* fitted (`sigma_star` absent), outliers left out, the ΛCDM
     /// expectation on, σ8 and n_s of Planck 2018 (Planck Collaboration VI 2020, Table 2,
     /// TT,TE,EE+lowE+lensing+BAO; `physics::power::PowerParams::planck2018`); Ω_b absent means
     /// Planck 2018's Ω_b h² = 0.02242 held fixed at the run's h.
     pub fn filled(&self) -> BulkFlowChoice {
         let p = crate::physics::power::PowerParams::planck2018();
         BulkFlowChoice {
-            space: Some(self.space.unwrap_or_default()),
+            quantity: Some(self.quantity.unwrap_or_default()),
             sigma_star: self.sigma_star,
-            skip_outliers: Some(self.skip_outliers.unwrap_or(true)),
+            include_outliers: Some(
+                self.include_outliers
+                    .or(self.legacy_skip_outliers.map(|skip| !skip))
+                    .unwrap_or(false),
+            ),
+            legacy_skip_outliers: None,
             lcdm: Some(self.lcdm.unwrap_or(true)),
             sigma8: Some(self.sigma8.unwrap_or(p.sigma8)),
             omega_b: self.omega_b,
