@@ -83,6 +83,7 @@ impl CatalogueError {
 
 pub mod delimited;
 pub mod parquet;
+pub mod partitioned;
 
 /// Catalogue file formats, chosen by extension.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -133,6 +134,9 @@ pub struct ReadOptions {
 
 /// Read a catalogue in any supported format.
 pub fn read_table(path: &Path, options: &ReadOptions) -> Result<Table, CatalogueError> {
+    if partitioned::is_partitioned(path) {
+        return partitioned::read_partitioned(path, options).map(|(t, _)| t);
+    }
     if !path.exists() {
         return Err(CatalogueError::read(path, "no such file"));
     }

@@ -59,6 +59,9 @@ pub fn read_provenance(path: &Path, hdu: Option<&str>) -> Result<FoundProvenance
         origin: if entries.is_empty() { without } else { with }.to_string(),
         provenance: Provenance { entries },
     };
+    if super::partitioned::is_partitioned(path) {
+        return super::partitioned::read_partitioned_provenance(path);
+    }
     match Format::from_path(path)? {
         Format::Fits => {
             let p = read_fits_provenance(path, hdu)?;

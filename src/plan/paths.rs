@@ -10,6 +10,8 @@ use std::path::{Path, PathBuf};
 pub struct Files {
     pub reads: Vec<(String, PathBuf)>,
     pub writes: Vec<(String, PathBuf)>,
+    /// Paths that may be folders (datasets).
+    pub folders: Vec<PathBuf>,
 }
 
 /// What identifies a file: its device and inode when it exists (so links are seen through),
@@ -60,13 +62,25 @@ impl Files {
         self
     }
 
+    /// A folder the command reads as one dataset (a partitioned survey).
+    pub fn read_folder(&mut self, role: &str, path: &Path) -> &mut Files {
+        self.folders.push(path.to_path_buf());
+        self.read(role, path)
+    }
+
+    /// A folder the command writes as one dataset.
+    pub fn write_folder(&mut self, role: &str, path: &Path) -> &mut Files {
+        self.folders.push(path.to_path_buf());
+        self.write(role, path)
+    }
+
     /// Check them all; every problem is reported at once.
     pub fn check(&self, force: bool) -> Result<(), super::PlanError> {
         let mut problems = vec![];
         for (role, p) in &self.reads {
             if !p.exists() {
                 problems.push(format!("{}: no such file (the {role})", p.display()));
-            } else if p.is_dir() {
+            } else if p.is_dir() && !self.folders.contains(p) {
                 problems.push(format!(
                     "{}: is a folder, not a file (the {role})",
                     p.display()
@@ -108,7 +122,7 @@ impl Files {
                 ));
                 continue;
             }
-            if p.is_dir() {
+            if p.is_dir() && !self.folders.contains(p) {
                 problems.push(format!("{}: is a folder (the {role})", p.display()));
             } else if p.exists() && !force {
                 problems.push(format!(

@@ -52,6 +52,9 @@ pub struct VelocityPlan {
     pub groups_output: Option<PathBuf>,
     pub bulk_flow_output: Option<PathBuf>,
     pub export_output: Option<PathBuf>,
+    /// The input is a partitioned survey (a folder of Parquet files) and the output a dataset
+    /// in the same layout (see `catalogue::partitioned`).
+    pub partitioned: bool,
 }
 
 impl VelocityPlan {
@@ -162,7 +165,21 @@ pub fn check_settings(
 /// Check the order and resolve it into a plan.
 pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, super::PlanError> {
     let user = merge_run_file(order.run_file.as_deref(), &order.flags)?;
-    let output_format = format_of_output(&order.output)?;
+    let partitioned = crate::catalogue::partitioned::is_partitioned(&order.input);
+    let output_format = if partitioned {
+        check_dataset_output(&order.input, &order.output)?;
+        Format::Parquet
+    } else {
+        format_of_output(&order.output)?
+    };
+    // Beside a dataset folder the stage tables are single Parquet files.
+    let beside = |tag: &str| {
+        if partitioned {
+            sibling_path(&order.output, &format!("{tag}.parquet"))
+        } else {
+            sibling_path(&order.output, tag)
+        }
+    };
     let shared = Shared::resolve(
         Some(&order.input),
         user.input.hdu.as_deref(),
@@ -173,7 +190,7 @@ pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, super::Plan
     let (draws, outliers, profile) = check_settings(cfg)?;
     let groups_output = cfg.groups.as_ref().map(|g| match &g.output {
         Some(p) => PathBuf::from(p),
-        None => sibling_path(&order.output, "groups"),
+        None => beside("groups"),
     });
     let bulk_flow_output = cfg
         .bulk_flow
@@ -181,18 +198,26 @@ pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, super::Plan
         .map(|_| sibling_json(&order.output, "bulkflow"));
     let export_output = cfg.export.as_ref().map(|e| match &e.output {
         Some(p) => PathBuf::from(p),
-        None => sibling_path(&order.output, "flow"),
+        None => beside("flow"),
     });
 
     let mut files = Files::new();
-    files.read("catalogue", &order.input);
+    if partitioned {
+        files.read_folder("catalogue", &order.input);
+    } else {
+        files.read("catalogue", &order.input);
+    }
     if let Some(p) = &order.run_file {
         files.read("run file", p);
     }
     if let Some(p) = &profile {
         files.read("Malmquist profile", p);
     }
-    table_output(&mut files, "output", &order.output);
+    if partitioned {
+        files.write_folder("output dataset", &order.output);
+    } else {
+        table_output(&mut files, "output", &order.output);
+    }
     if let Some(p) = &groups_output {
         format_of_output(p)?;
         table_output(&mut files, "group table", p);
@@ -221,6 +246,40 @@ pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, super::Plan
         groups_output,
         bulk_flow_output,
         export_output,
+        partitioned,
         shared,
     })
+}
+
+/// A partitioned survey's output is a folder of its own: not a file name with a table
+/// extension, and neither inside the input folder nor holding it.
+fn check_dataset_output(input: &Path, output: &Path) -> Result<(), super::PlanError> {
+    if Format::from_path(output).is_ok() {
+        return Err(format!(
+            "{}: the input {} is a partitioned survey (a folder of Parquet files); give a folder as the output, written in the same layout",
+            output.display(),
+            input.display()
+        )
+        .into());
+    }
+    let abs = |p: &Path| {
+        std::fs::canonicalize(p).unwrap_or_else(|_| {
+            let parent = p.parent().filter(|d| !d.as_os_str().is_empty());
+            let base = parent
+                .and_then(|d| std::fs::canonicalize(d).ok())
+                .or_else(|| std::env::current_dir().ok())
+                .unwrap_or_default();
+            base.join(p.file_name().unwrap_or_default())
+        })
+    };
+    let (i, o) = (abs(input), abs(output));
+    if o.starts_with(&i) || i.starts_with(&o) {
+        return Err(format!(
+            "{}: the output folder must lie outside the input folder {} (and not contain it)",
+            output.display(),
+            input.display()
+        )
+        .into());
+    }
+    Ok(())
 }

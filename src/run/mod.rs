@@ -21,6 +21,7 @@ use serde::Serialize;
 
 use crate::catalogue::column_schema::meta_of;
 use crate::catalogue::delimited::SourceText;
+use crate::catalogue::partitioned::Partition;
 use crate::catalogue::record::RowCounts;
 use crate::catalogue::{
     read_table, write_table, ColumnMeta, ReadOptions, RunRecord, Table, WriteOptions,
@@ -136,14 +137,27 @@ pub(crate) fn object_context<'a>(
     }
 }
 
+/// The catalogue as read: the table, its text (for a delimited output), the derived columns
+/// of an earlier run that were dropped, and the partitions of a partitioned survey.
+type ReadCatalogue = (
+    Table,
+    Option<SourceText>,
+    Vec<String>,
+    Option<Vec<Partition>>,
+);
+
 /// Step 1: the catalogue, with its text when a delimited output can copy its columns, and
 /// without the derived columns of an earlier run (they are recomputed).
-fn read_catalogue(
-    plan: &VelocityPlan,
-) -> Result<(Table, Option<SourceText>, Vec<String>), RunError> {
+fn read_catalogue(plan: &VelocityPlan) -> Result<ReadCatalogue, RunError> {
     let options = ReadOptions {
         hdu: plan.config().input.hdu.clone(),
     };
+    if plan.partitioned {
+        let (table, parts) = crate::catalogue::partitioned::read_partitioned(&plan.input, &options)
+            .map_err(|e| e.to_string())?;
+        let (table, replaced) = sample_stages::strip_earlier_run(table);
+        return Ok((table, None, replaced, Some(parts)));
+    }
     let (table, text) = if matches!(
         plan.output_format,
         crate::catalogue::Format::Csv | crate::catalogue::Format::Tsv
@@ -157,7 +171,7 @@ fn read_catalogue(
         )
     };
     let (table, replaced) = sample_stages::strip_earlier_run(table);
-    Ok((table, text, replaced))
+    Ok((table, text, replaced, None))
 }
 
 /// The largest heliocentric redshift of a row that is still ok.
@@ -264,7 +278,7 @@ pub fn run_velocities(
     let shared = &plan.shared;
     let where_ = |e: RunError| RunError::in_file(&plan.input, e);
 
-    let (table, source_text, replaced) = read_catalogue(plan)?;
+    let (table, source_text, replaced, partitions) = read_catalogue(plan)?;
     let columns = resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit)
         .map_err(|e| where_(e.into()))?;
     let mut input = pipeline::extract(&table, &columns).map_err(|e| where_(e.into()))?;
@@ -437,13 +451,22 @@ pub fn run_velocities(
         force: plan.force,
         protected: plan.inputs().iter().map(|(_, p)| p.to_path_buf()).collect(),
     };
-    crate::catalogue::write_table_with_text(
-        &plan.output,
-        &out_table,
-        &provenance,
-        &options,
-        source_text.as_ref(),
-    )
+    match &partitions {
+        Some(parts) => crate::catalogue::partitioned::write_partitioned(
+            &plan.output,
+            &out_table,
+            parts,
+            &provenance,
+            &options,
+        ),
+        None => crate::catalogue::write_table_with_text(
+            &plan.output,
+            &out_table,
+            &provenance,
+            &options,
+            source_text.as_ref(),
+        ),
+    }
     .map_err(|e| e.to_string())?;
     drop(source_text);
     let mut groups_summary = None;
