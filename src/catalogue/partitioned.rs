@@ -121,6 +121,8 @@ pub fn read_partitioned(
                 w.frame
                     .vstack_mut(&aligned)
                     .map_err(|e| CatalogueError::read(&path, e.to_string()))?;
+                w.notes
+                    .extend(t.notes.iter().map(|n| format!("{}: {n}", path.display())));
             }
         }
     }

@@ -2,7 +2,6 @@
 //! out. Rows are processed in chunks on rayon's pool, each chunk writing straight into its
 //! slice of every output column, so no per-row allocation happens in the hot loop.
 
-pub mod comparison;
 mod error;
 pub mod given_frames;
 pub mod inputs;
@@ -64,6 +63,9 @@ mod col {
 pub struct Derived {
     pub columns: Vec<Vec<f64>>,
     pub status: Vec<u8>,
+    /// `v_pec_wf` and `v_pec_wf_err` (Watkins & Feldman 2015, for comparison), when asked
+    /// for; the error is NaN where an input error is missing.
+    pub watkins_feldman: Option<(Vec<f64>, Vec<f64>)>,
 }
 
 impl Derived {
@@ -80,6 +82,9 @@ impl Derived {
     pub fn clear_errors(&mut self) {
         for k in [col::Z_COS_ERR, col::V_PEC_ERR, col::ETA_ERR, col::V_REC_ERR] {
             self.columns[k].iter_mut().for_each(|v| *v = f64::NAN);
+        }
+        if let Some((_, err)) = &mut self.watkins_feldman {
+            err.iter_mut().for_each(|v| *v = f64::NAN);
         }
     }
 
@@ -123,8 +128,21 @@ pub fn derive(
     input: &InputColumns,
     progress: &(dyn Fn(usize) + Sync),
 ) -> Derived {
+    derive_with(ctx, input, progress, false)
+}
+
+/// As [`derive`]; with `watkins_feldman`, the same pass also keeps the Watkins & Feldman
+/// (2015) estimate and its error of every row (two more columns, no second evaluation).
+pub fn derive_with(
+    ctx: &ObjectContext<'_>,
+    input: &InputColumns,
+    progress: &(dyn Fn(usize) + Sync),
+    watkins_feldman: bool,
+) -> Derived {
     let n = input.status.len();
-    let mut columns = vec![vec![f64::NAN; n]; OUTPUT_COLUMNS.len()];
+    let base = OUTPUT_COLUMNS.len();
+    let width = base + if watkins_feldman { 2 } else { 0 };
+    let mut columns = vec![vec![f64::NAN; n]; width];
     let mut status = input.status.clone();
     chunked(&mut columns, &mut status)
         .into_par_iter()
@@ -151,10 +169,17 @@ pub fn derive(
                         for (o, v) in out.iter_mut().zip(values) {
                             o[j] = v;
                         }
+                        if watkins_feldman {
+                            out[base][j] = r.v_pec_watkins_feldman;
+                            out[base + 1][j] = r.v_pec_watkins_feldman_err;
+                        }
                         if input.error_missing[i] {
                             for k in [col::Z_COS_ERR, col::V_PEC_ERR, col::ETA_ERR, col::V_REC_ERR]
                             {
                                 out[k][j] = f64::NAN;
+                            }
+                            if watkins_feldman {
+                                out[base + 1][j] = f64::NAN;
                             }
                         }
                     }
@@ -163,7 +188,16 @@ pub fn derive(
             }
             progress(st.len());
         });
-    Derived { columns, status }
+    let watkins_feldman = watkins_feldman.then(|| {
+        let err = columns.pop().unwrap_or_default();
+        let v = columns.pop().unwrap_or_default();
+        (v, err)
+    });
+    Derived {
+        columns,
+        status,
+        watkins_feldman,
+    }
 }
 
 /// Add derived columns to the input table. An input column whose name a derived column

@@ -33,7 +33,8 @@ fn identity(path: &Path) -> Identity {
     Identity::Path(absolute(path))
 }
 
-fn absolute(path: &Path) -> PathBuf {
+/// The absolute path of `path`, through links where it exists (its folder's otherwise).
+pub(crate) fn absolute(path: &Path) -> PathBuf {
     if let Ok(p) = std::fs::canonicalize(path) {
         return p;
     }

@@ -262,17 +262,10 @@ fn check_dataset_output(input: &Path, output: &Path) -> Result<(), super::PlanEr
         )
         .into());
     }
-    let abs = |p: &Path| {
-        std::fs::canonicalize(p).unwrap_or_else(|_| {
-            let parent = p.parent().filter(|d| !d.as_os_str().is_empty());
-            let base = parent
-                .and_then(|d| std::fs::canonicalize(d).ok())
-                .or_else(|| std::env::current_dir().ok())
-                .unwrap_or_default();
-            base.join(p.file_name().unwrap_or_default())
-        })
-    };
-    let (i, o) = (abs(input), abs(output));
+    let (i, o) = (
+        super::paths::absolute(input),
+        super::paths::absolute(output),
+    );
     if o.starts_with(&i) || i.starts_with(&o) {
         return Err(format!(
             "{}: the output folder must lie outside the input folder {} (and not contain it)",

@@ -323,13 +323,13 @@ pub fn run_velocities(
     }
 
     let derive_progress = |k: usize| progress(Phase::Derive, k);
-    let mut derived = pipeline::derive(&ctx, &input, &derive_progress);
+    let with_wf = cfg.comparisons.watkins_feldman == Some(true);
+    let mut derived = pipeline::derive_with(&ctx, &input, &derive_progress, with_wf);
     notes.extend(error_note(&columns, shared.sigma_star, &mut derived));
     let counts_map = derived.counts();
     let rows_read = derived.status.len();
     let rows_ok = *counts_map.get(&RowStatus::Ok).unwrap_or(&0);
-    if cfg.comparisons.watkins_feldman == Some(true) {
-        let (v, e) = pipeline::comparison::watkins_feldman_columns(&ctx, &input, &derived.status);
+    if let Some((v, e)) = derived.watkins_feldman.take() {
         extra.push(("v_pec_wf".into(), v, meta_of("v_pec_wf", "")));
         extra.push(("v_pec_wf_err".into(), e, meta_of("v_pec_wf_err", "")));
         notes.push("v_pec_wf: the estimator of Watkins & Feldman (2015, MNRAS 450, 1868), for comparison only; v_pec is the exact estimate.".into());

@@ -324,6 +324,7 @@ pub fn group_table(
     let group_derived = Derived {
         columns: cols,
         status,
+        watkins_feldman: None,
     };
     let (mut table, _) =
         crate::pipeline::assemble(&base, group_derived, vec![], plan.length_unit.label())?;
