@@ -250,9 +250,13 @@ fn provenance_in_every_format() {
     assert!(kv
         .iter()
         .any(|(k, v)| k == "flowsift.dl_convention" && v == "full"));
+    // The units for astropy's reader (astropy/io/misc/parquet.py reads `table_meta_yaml`)
+    // and as Arrow field metadata, read back by our own reader.
     assert!(kv
         .iter()
-        .any(|(k, v)| k == parquet::COLUMNS_KEY && v.contains("km/s")));
+        .any(|(k, v)| k == parquet::ASTROPY_KEY && v.contains("unit: km/s")));
+    let back = read_table(&pq, &ReadOptions::default()).unwrap();
+    assert_eq!(back.meta["v_pec"].unit.as_deref(), Some("km/s"));
 
     let csv = dir.path().join("o.csv");
     run_ok(&[
@@ -425,6 +429,7 @@ fn columns_found_by_ucd_and_unit() {
     let m = |unit: &str, ucd: &str| ColumnMeta {
         unit: Some(unit.into()),
         ucd: Some(ucd.into()),
+        description: None,
     };
     let meta = BTreeMap::from([
         ("RAJ2000".to_string(), m("deg", "pos.eq.ra;meta.main")),

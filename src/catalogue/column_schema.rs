@@ -308,6 +308,7 @@ impl ColumnSpec {
         ColumnMeta {
             unit,
             ucd: Some(self.ucd.to_string()),
+            description: Some(self.description.to_string()),
         }
     }
 }
