@@ -63,6 +63,7 @@ fn meta(unit: Option<&str>, ucd: Option<&str>) -> ColumnMeta {
     ColumnMeta {
         unit: unit.map(str::to_string),
         ucd: ucd.map(str::to_string),
+        description: None,
     }
 }
 
@@ -91,12 +92,13 @@ fn sample_table() -> Table {
 }
 
 fn long_value() -> String {
-    // 260 characters with quotes, a '%', non-ASCII text and runs of blanks.
+    // 260 characters with quotes, a '%' and runs of blanks (non-ASCII text in a FITS card
+    // is spelled out: provenance_cards_are_readable_ascii_with_history).
     let mut s = String::from("flowsift table --input 'cat alogue.fits' --select \"z > 0.01\"  ");
     while s.len() < 240 {
         s.push_str("0123456789 ");
     }
-    s.push_str("100% Ω done");
+    s.push_str("100% Omega done");
     assert!(s.len() > 200);
     s
 }
@@ -107,10 +109,7 @@ fn sample_provenance() -> Provenance {
             ("flowsift_version".into(), "0.1.0".into()),
             ("command".into(), long_value()),
             ("empty".into(), String::new()),
-            (
-                "trailing blanks  ".into(),
-                "  leading and trailing  ".into(),
-            ),
+            ("leading blanks".into(), "  kept".into()),
             (
                 "apex".into(),
                 "l=264.021 b=48.253 v=369.82 km/s (it's 'quoted')".into(),
@@ -118,6 +117,10 @@ fn sample_provenance() -> Provenance {
             (
                 "command".into(),
                 "a repeated key stays a separate entry".into(),
+            ),
+            (
+                "record".into(),
+                r#"{"chain":"mock → velocities","cosmology":"flat ΛCDM","sigma":"σ_* 𝛽"}"#.into(),
             ),
         ],
     }
@@ -186,10 +189,82 @@ fn written_file_layout() {
     assert_eq!(hdu.read_key::<i64>(&mut f, "TNULL2").unwrap(), i64::MIN);
     assert_eq!(form(&mut f, "TUNIT2"), "count");
     assert_eq!(form(&mut f, "TUCD1"), "src.redshift");
-    assert_eq!(form(&mut f, "PRVK001"), "flowsift_version");
-    assert_eq!(form(&mut f, "PRVV001"), "0.1.0");
-    assert_eq!(form(&mut f, "PRVK004"), "trailing blanks%20%20");
+    assert_eq!(form(&mut f, "PROV001"), "flowsift_version: 0.1.0");
+    assert_eq!(form(&mut f, "PROV004"), "leading blanks:   kept");
+    // JSON keeps its value in ASCII: non-ASCII characters as \uXXXX escapes (RFC 8259 §7;
+    // U+1D6FD as the surrogate pair d835 defd).
+    // (A long string: its first card, then CONTINUE cards.)
+    let header = String::from_utf8_lossy(&std::fs::read(&path).unwrap()).into_owned();
+    assert!(header.contains(
+        r#"PROV007 = 'record: {"chain":"mock \u2192 velocities","cosmology":"flat \u039bC&'"#
+    ));
+    assert!(header.contains(r#"\u03c3_* \ud835\udefd"}'"#));
     assert_eq!(form(&mut f, "LONGSTRN"), "OGIP 1.0");
+}
+
+/// Entries that are not JSON are written readable: Greek letters and signs spelled out
+/// (flowsift's own table, src/catalogue/ascii.rs), and read back so; HISTORY cards repeat
+/// the short settings as sentences.
+#[test]
+fn provenance_cards_are_readable_ascii_with_history() {
+    let dir = tmp();
+    let path = dir.path().join("readable.fits");
+    let provenance = Provenance {
+        entries: vec![
+            ("software".into(), "flowsift 0.1.0".into()),
+            ("stage".into(), "velocities".into()),
+            (
+                "cosmology_name".into(),
+                "flat ΛCDM, Ω_m = 0.3 ± 0.01".into(),
+            ),
+            ("sigma_star".into(), "σ_* ≤ 300 km/s".into()),
+        ],
+    };
+    write_fits(&path, &sample_table(), &provenance).unwrap();
+    let back = read_fits_provenance(&path, None).unwrap();
+    assert_eq!(
+        back.entries[2],
+        (
+            "cosmology_name".to_string(),
+            "flat LambdaCDM, Omega_m = 0.3 +/- 0.01".to_string()
+        )
+    );
+    assert_eq!(back.entries[3].1, "sigma_* <= 300 km/s");
+    let file = String::from_utf8_lossy(&std::fs::read(&path).unwrap()).into_owned();
+    let table_header = &file[file.find("XTENSION").unwrap()..];
+    let header = &table_header[..table_header
+        .find(&format!("END{}", " ".repeat(77)))
+        .unwrap()];
+    assert!(header.is_ascii());
+    assert!(
+        header.contains("HISTORY flowsift 0.1.0 velocities: cosmology_name = flat LambdaCDM"),
+        "no HISTORY line"
+    );
+}
+
+/// Files written before the PROVnnn cards (PRVKnnn key, PRVVnnn value, %XX-escaped UTF-8)
+/// are still read.
+#[test]
+fn earlier_prvk_prvv_cards_are_still_read() {
+    let dir = tmp();
+    let path = dir.path().join("old.fits");
+    write_fits(&path, &sample_table(), &Provenance::default()).unwrap();
+    {
+        let mut f = FitsFile::edit(&path).unwrap();
+        let hdu = f.hdu(1).unwrap();
+        hdu.write_key(&mut f, "PRVK001", "cosmology").unwrap();
+        hdu.write_key(&mut f, "PRVV001", "flat %CE%9BCDM").unwrap();
+        hdu.write_key(&mut f, "PRVK002", "blanks%20").unwrap();
+        hdu.write_key(&mut f, "PRVV002", "100%25").unwrap();
+    }
+    let back = read_fits_provenance(&path, None).unwrap();
+    assert_eq!(
+        back.entries,
+        vec![
+            ("cosmology".to_string(), "flat ΛCDM".to_string()),
+            ("blanks ".to_string(), "100%".to_string()),
+        ]
+    );
 }
 
 #[test]

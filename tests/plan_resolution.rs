@@ -51,6 +51,7 @@ fn meta(unit: &str, ucd: &str) -> ColumnMeta {
     ColumnMeta {
         unit: (!unit.is_empty()).then(|| unit.to_string()),
         ucd: (!ucd.is_empty()).then(|| ucd.to_string()),
+        description: None,
     }
 }
 

@@ -250,9 +250,13 @@ fn provenance_in_every_format() {
     assert!(kv
         .iter()
         .any(|(k, v)| k == "flowsift.dl_convention" && v == "full"));
+    // The units for astropy's reader (astropy/io/misc/parquet.py reads `table_meta_yaml`)
+    // and as Arrow field metadata, read back by our own reader.
     assert!(kv
         .iter()
-        .any(|(k, v)| k == parquet::COLUMNS_KEY && v.contains("km/s")));
+        .any(|(k, v)| k == parquet::ASTROPY_KEY && v.contains("unit: km/s")));
+    let back = read_table(&pq, &ReadOptions::default()).unwrap();
+    assert_eq!(back.meta["v_pec"].unit.as_deref(), Some("km/s"));
 
     let csv = dir.path().join("o.csv");
     run_ok(&[
@@ -288,7 +292,8 @@ fn every_row_accounted_for() {
          150.0,2.0,,130.0,20.0\n\
          150.0,2.0,0.03,1e9,20.0\n\
          150.0,2.0,-0.003,20.0,2.0\n\
-         10:00:00.0,+02:00:00,0.03,130.0,20.0\n",
+         10:00:00.0,+02:00:00,0.03,130.0,20.0\n\
+         150.0,2.0,1.3e158,130.0,20.0\n",
     )
     .unwrap();
     let op = dir.path().join("out.csv");
@@ -312,6 +317,8 @@ fn every_row_accounted_for() {
         "no_cosmological_solution",
         "redshift_out_of_range",
         "ok",
+        // Beyond last scattering: a typo, not a table stretched to reach it.
+        "redshift_out_of_range",
     ];
     let status = strings(&out, "status");
     assert_eq!(status.len(), expected.len());
@@ -322,7 +329,7 @@ fn every_row_accounted_for() {
     assert!(v[0].is_some() && v[1].is_none() && v[11].is_some());
     // Sexagesimal text in a column decodes like decimal degrees (10h = 150°).
     assert!((v[0].unwrap() - v[11].unwrap()).abs() < 1e-9);
-    assert!(stdout.contains("rows read         12"), "{stdout}");
+    assert!(stdout.contains("rows read         13"), "{stdout}");
     assert!(stdout.contains("rows ok            2"), "{stdout}");
     assert!(stdout.contains("unparseable_value"), "{stdout}");
 }
@@ -425,6 +432,7 @@ fn columns_found_by_ucd_and_unit() {
     let m = |unit: &str, ucd: &str| ColumnMeta {
         unit: Some(unit.into()),
         ucd: Some(ucd.into()),
+        description: None,
     };
     let meta = BTreeMap::from([
         ("RAJ2000".to_string(), m("deg", "pos.eq.ra;meta.main")),

@@ -144,6 +144,15 @@ impl FitsHandle {
         unsafe { sys::ffpcom(self.raw(), c_text.as_ptr(), &mut status) };
         ok(status)
     }
+
+    /// A HISTORY card (cfitsio continues text longer than one card on further ones).
+    pub(super) fn write_history(&self, text: &str) -> Result<(), c_int> {
+        let c_text = CString::new(text).expect("history text has no NUL");
+        let mut status = 0;
+        // SAFETY: open handle, valid C string.
+        unsafe { sys::ffphis(self.raw(), c_text.as_ptr(), &mut status) };
+        ok(status)
+    }
 }
 
 impl Drop for FitsHandle {

@@ -322,6 +322,7 @@ impl ColumnSpec {
         ColumnMeta {
             unit,
             ucd: Some(self.ucd.to_string()),
+            description: Some(self.description.to_string()),
         }
     }
 }

@@ -279,6 +279,7 @@ pub fn grid_table(grid: &VelocityGrid) -> Result<Table, CatalogueError> {
             ColumnMeta {
                 unit: Some(if c < 3 { unit } else { "km/s" }.to_string()),
                 ucd: Some(ucds[c].to_string()),
+                description: None,
             },
         );
     }

@@ -1,18 +1,22 @@
-//! Catalogue edges: reading FITS, CSV/TSV and Parquet tables into columns, and writing them
-//! back with units, UCDs and provenance. Nothing here does physics.
+//! Catalogue edges: reading FITS, CSV/TSV, Parquet, VOTable and ECSV tables into columns,
+//! and writing them back with units, UCDs, descriptions and provenance. Nothing here does
+//! physics.
 
+pub mod ascii;
 pub mod atomic;
 pub mod bulk_flow_file;
 mod cfitsio;
 pub mod clock;
 pub mod column_schema;
 pub mod contained;
+pub mod ecsv;
 pub mod field_io;
 pub mod fits;
 pub mod provenance;
 pub mod record;
 pub mod storable;
 pub mod units;
+pub mod votable;
 
 use std::collections::BTreeMap;
 use std::path::{Path, PathBuf};
@@ -20,14 +24,19 @@ use std::path::{Path, PathBuf};
 use polars::prelude::DataFrame;
 use thiserror::Error;
 
-/// Per-column metadata carried alongside the data: FITS TUNITn / TUCDn, Parquet and CSV
-/// sidecar equivalents.
+/// Per-column metadata carried alongside the data: FITS TUNITn / TUCDn, VOTable FIELD
+/// `unit`/`ucd`/DESCRIPTION, ECSV `unit`/`description`/`meta.ucd`, Arrow field metadata in
+/// Parquet, and the CSV sidecar.
 #[derive(Debug, Clone, Default, PartialEq, serde::Serialize, serde::Deserialize)]
 pub struct ColumnMeta {
     /// Unit string (FITS standard 4.0 §4.3 unit syntax, e.g. "km/s", "Mpc", "deg", "mag").
     pub unit: Option<String>,
     /// IVOA Unified Content Descriptor (UCD1+), e.g. "src.redshift", "pos.eq.ra".
     pub ucd: Option<String>,
+    /// What the column holds, in words (VOTable DESCRIPTION, ECSV `description`, Arrow field
+    /// metadata `description`). Absent in sidecars written before it existed.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub description: Option<String>,
 }
 
 /// A table: the data as a polars DataFrame and metadata by column name.
@@ -38,7 +47,8 @@ pub struct Table {
     /// What reading the file noted for the run's summary (lines skipped, columns widened).
     pub notes: Vec<String>,
     /// Table-level keywords that state the frames of the columns, as the file gives them
-    /// (FITS `RADESYS`, `EQUINOX`, `SPECSYS`); empty for formats without them.
+    /// (FITS `RADESYS`, `EQUINOX`, `SPECSYS`; a VOTable's COOSYS gives `RADESYS` and
+    /// `EQUINOX` too); empty for formats without them.
     pub keywords: BTreeMap<String, String>,
 }
 
@@ -92,11 +102,27 @@ pub enum Format {
     Csv,
     Tsv,
     Parquet,
+    /// IVOA VOTable 1.4 ([`votable`]).
+    VoTable,
+    /// Astropy's Enhanced CSV 1.0 ([`ecsv`]).
+    Ecsv,
 }
+
+/// The file types flowsift reads and writes, for messages.
+pub const FORMATS_HINT: &str =
+    "use .fits/.fit/.fits.gz, .csv, .tsv, .parquet, .ecsv or .vot/.votable/.xml (VOTable)";
+
+/// Extensions of every format, longest first where one ends another (for names derived
+/// from an output's).
+pub const EXTENSIONS: [&str; 13] = [
+    ".fits.gz", ".fit.gz", ".fits", ".fit", ".fts", ".csv", ".tsv", ".parquet", ".pq", ".ecsv",
+    ".votable", ".vot", ".xml",
+];
 
 impl Format {
     /// The format a path's extension names: `.fits`, `.fit`, `.fits.gz`, `.fit.gz`, `.csv`,
-    /// `.tsv`, `.parquet`.
+    /// `.tsv`, `.parquet`, `.ecsv`, `.vot`, `.votable` or `.xml` (a VOTable; an `.xml` file
+    /// that is not one is refused when read).
     pub fn from_path(path: &Path) -> Result<Format, CatalogueError> {
         let name = path
             .file_name()
@@ -115,10 +141,14 @@ impl Format {
             Format::Tsv
         } else if name.ends_with(".parquet") || name.ends_with(".pq") {
             Format::Parquet
+        } else if name.ends_with(".ecsv") {
+            Format::Ecsv
+        } else if name.ends_with(".vot") || name.ends_with(".votable") || name.ends_with(".xml") {
+            Format::VoTable
         } else {
             return Err(CatalogueError::read(
                 path,
-                "unknown file type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet",
+                format!("unknown file type: {FORMATS_HINT}"),
             ));
         };
         Ok(f)
@@ -128,7 +158,7 @@ impl Format {
 /// How to read.
 #[derive(Debug, Clone, Default)]
 pub struct ReadOptions {
-    /// FITS HDU, by EXTNAME or index.
+    /// FITS HDU, by EXTNAME or index; a VOTable's TABLE, by name or number (from 1).
     pub hdu: Option<String>,
 }
 
@@ -147,6 +177,10 @@ pub fn read_table(path: &Path, options: &ReadOptions) -> Result<Table, Catalogue
         Format::Csv => contained::read(path, "CSV", || delimited::read_delimited(path, b',')),
         Format::Tsv => contained::read(path, "TSV", || delimited::read_delimited(path, b'\t')),
         Format::Parquet => contained::read(path, "Parquet", || parquet::read_parquet(path)),
+        Format::VoTable => contained::read(path, "VOTable", || {
+            votable::read_votable(path, options.hdu.as_deref())
+        }),
+        Format::Ecsv => contained::read(path, "ECSV", || ecsv::read_ecsv(path)),
     }
 }
 
@@ -217,12 +251,8 @@ pub fn write_table_with_text(
     options: &WriteOptions,
     text: Option<&delimited::SourceText>,
 ) -> Result<(), CatalogueError> {
-    let format = Format::from_path(path).map_err(|_| {
-        CatalogueError::write(
-            path,
-            "unknown output type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet",
-        )
-    })?;
+    let format = Format::from_path(path)
+        .map_err(|_| CatalogueError::write(path, format!("unknown output type: {FORMATS_HINT}")))?;
     check_destination(path, options)?;
     let prepared = storable::prepare(format, table).map_err(|e| CatalogueError::write(path, e))?;
     let table = prepared.as_ref().unwrap_or(table);
@@ -249,6 +279,10 @@ pub fn write_table_with_text(
         Format::Parquet => {
             atomic::write_via_file(path, |f| parquet::write_parquet(f, table, provenance))
         }
+        Format::VoTable => {
+            atomic::write_via_file(path, |f| votable::write_votable(f, table, provenance))
+        }
+        Format::Ecsv => atomic::write_via_file(path, |f| ecsv::write_ecsv(f, table, provenance)),
     }
 }
 

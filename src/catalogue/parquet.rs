@@ -1,4 +1,19 @@
-//! Parquet through polars; provenance and column units as file key-value metadata.
+//! Parquet through polars, with the metadata in the places other readers look:
+//!
+//! * per column, Arrow field metadata `unit`, `ucd` and `description` inside the Arrow
+//!   schema that the Parquet key-value entry `ARROW:schema` holds (Apache Arrow, "Parquet
+//!   format: metadata", the schema stored as a base64 IPC message), which pyarrow and polars
+//!   show per field;
+//! * the provenance as key-value entries `flowsift.<key>`, in the Parquet key-value block and
+//!   in the Arrow schema metadata;
+//! * `table_meta_yaml`, the ECSV-style YAML header from which astropy's Parquet reader takes
+//!   each column's `unit`, `description` and `meta` (astropy/io/misc/parquet.py,
+//!   `read_table_parquet`), so that `Table.read("out.parquet")["v_pec"].unit` is km/s.
+//!
+//! polars 0.55's `ParquetWriter` writes the Arrow schema of the frame without field metadata;
+//! it takes a caller's own `ARROW:schema` entry instead of its own when one is given, so the
+//! schema is built here from the same frame (same types) with the metadata added, and
+//! serialised by polars-parquet's own `schema_to_metadata_key`.
 
 use std::collections::BTreeMap;
 use std::fs::File;
@@ -8,24 +23,44 @@ use polars::prelude::*;
 
 use super::{CatalogueError, ColumnMeta, Provenance, Table};
 
-/// Key under which per-column units and UCDs are stored (JSON object name → {unit, ucd});
-/// distinct from every `flowsift.<provenance entry>` key (the column plan is `flowsift.columns`).
+/// Key under which earlier flowsift outputs stored per-column units and UCDs (JSON object
+/// name → {unit, ucd}), before they moved to the Arrow field metadata; still read, no
+/// longer written. Distinct
+/// from every `flowsift.<provenance entry>` key (the column plan is `flowsift.columns`).
 pub const COLUMNS_KEY: &str = "flowsift.column_units";
 
-/// Read a Parquet file. Units and UCDs written by flowsift (under [`COLUMNS_KEY`]) are
-/// read back for the columns present, so a flowsift output fed back in keeps them; a file
-/// from elsewhere has none (Parquet itself has no unit field).
+/// The key-value entry astropy reads column units from.
+pub const ASTROPY_KEY: &str = "table_meta_yaml";
+
+/// The key-value entry holding the Arrow schema.
+pub const ARROW_SCHEMA_KEY: &str = "ARROW:schema";
+
+/// Read a Parquet file. Units, UCDs and descriptions are read back from the Arrow field
+/// metadata (`unit`, `ucd`, `description`, as flowsift, pyarrow users and others write
+/// them), else from astropy's [`ASTROPY_KEY`], else from an older flowsift output's
+/// [`COLUMNS_KEY`], so a flowsift output fed
+/// back in keeps them; a file without either has none (Parquet itself has no unit field).
 pub fn read_parquet(path: &Path) -> Result<Table, CatalogueError> {
     let file = File::open(path).map_err(|e| CatalogueError::read(path, e.to_string()))?;
     let mut reader = ParquetReader::new(file);
-    let stored = reader
+    let metadata = reader
         .get_metadata()
         .map_err(|e| CatalogueError::read(path, format!("cannot read as Parquet: {e}")))?
+        .clone();
+    let stored = metadata
         .key_value_metadata()
         .iter()
         .flatten()
         .find(|kv| kv.key == COLUMNS_KEY)
         .and_then(|kv| kv.value.clone());
+    let from_astropy = metadata
+        .key_value_metadata()
+        .iter()
+        .flatten()
+        .find(|kv| kv.key == ASTROPY_KEY)
+        .and_then(|kv| kv.value.as_deref())
+        .and_then(super::ecsv::column_meta_from_yaml);
+    let from_fields = field_metadata(&metadata).or(from_astropy);
     let stated_rows = reader
         .num_rows()
         .map_err(|e| CatalogueError::read(path, format!("cannot read as Parquet: {e}")))?;
@@ -56,14 +91,15 @@ pub fn read_parquet(path: &Path) -> Result<Table, CatalogueError> {
             ),
         ));
     }
-    let mut meta: BTreeMap<String, ColumnMeta> = match stored {
-        Some(text) => serde_json::from_str(&text).map_err(|e| {
+    let mut meta: BTreeMap<String, ColumnMeta> = match (from_fields, stored) {
+        (Some(m), _) => m,
+        (None, Some(text)) => serde_json::from_str(&text).map_err(|e| {
             CatalogueError::read(
                 path,
                 format!("key-value metadata '{COLUMNS_KEY}' is not a column map: {e}"),
             )
         })?,
-        None => BTreeMap::new(),
+        (None, None) => BTreeMap::new(),
     };
     meta.retain(|name, _| frame.column(name).is_ok());
     let (frame, notes) = widen_narrow(frame).map_err(|e| CatalogueError::read(path, e))?;
@@ -114,19 +150,75 @@ fn widen_narrow(mut frame: DataFrame) -> Result<(DataFrame, Vec<String>), String
     Ok((frame, notes))
 }
 
-/// Provenance entries as key-value metadata (keys prefixed `flowsift.`), plus the column
-/// metadata under [`COLUMNS_KEY`].
+/// Per-column metadata from the Arrow schema's field metadata; `None` when no field has a
+/// `unit`, `ucd` or `description` (or the file has no Arrow schema).
+fn field_metadata(metadata: &FileMetadata) -> Option<BTreeMap<String, ColumnMeta>> {
+    let schema = polars::io::parquet::read::infer_schema(metadata).ok()?;
+    let mut out = BTreeMap::new();
+    for field in schema.iter_values() {
+        let Some(m) = field.metadata.as_ref() else {
+            continue;
+        };
+        let get = |k: &str| {
+            m.get(k)
+                .map(|v| v.to_string())
+                .filter(|v| !v.trim().is_empty())
+        };
+        let meta = ColumnMeta {
+            unit: get("unit"),
+            ucd: get("ucd"),
+            description: get("description"),
+        };
+        if meta != ColumnMeta::default() {
+            out.insert(field.name.to_string(), meta);
+        }
+    }
+    (!out.is_empty()).then_some(out)
+}
+
+/// Write `table` with the metadata described in the [module documentation](self).
 pub fn write_parquet(file: &File, table: &Table, provenance: &Provenance) -> Result<(), String> {
-    let mut kv: Vec<(String, String)> = provenance
+    let entries: Vec<(String, String)> = provenance
         .entries
         .iter()
         .map(|(k, v)| (format!("flowsift.{k}"), v.clone()))
         .collect();
-    kv.push((
-        COLUMNS_KEY.into(),
-        serde_json::to_string(&table.meta).map_err(|e| e.to_string())?,
-    ));
     let mut df = table.frame.clone();
+    let mut schema = df.schema().to_arrow(CompatLevel::newest());
+    for field in schema.iter_values_mut() {
+        let Some(m) = table.meta.get(field.name.as_str()) else {
+            continue;
+        };
+        let pairs = [
+            ("unit", &m.unit),
+            ("ucd", &m.ucd),
+            ("description", &m.description),
+        ];
+        for (k, v) in pairs {
+            if let Some(v) = v.as_deref().filter(|v| !v.is_empty()) {
+                std::sync::Arc::make_mut(field.metadata.get_or_insert_default())
+                    .insert(k.into(), v.into());
+            }
+        }
+    }
+    let astropy = super::ecsv::table_meta_yaml(table, provenance)?;
+    // pyarrow (and so astropy) sees the Arrow schema's metadata when the file has one, the
+    // key-value block otherwise: both hold the same entries.
+    for (k, v) in entries
+        .iter()
+        .chain([(ASTROPY_KEY.to_string(), astropy.clone())].iter())
+    {
+        schema
+            .metadata_mut()
+            .insert(k.as_str().into(), v.as_str().into());
+    }
+    let arrow = polars_parquet::arrow::write::schema_to_metadata_key(&schema);
+    let mut kv = vec![(
+        ARROW_SCHEMA_KEY.to_string(),
+        arrow.value.unwrap_or_default(),
+    )];
+    kv.extend(entries);
+    kv.push((ASTROPY_KEY.to_string(), astropy));
     ParquetWriter::new(file)
         .with_key_value_metadata(Some(KeyValueMetadata::from_static(kv)))
         .finish(&mut df)

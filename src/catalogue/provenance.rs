@@ -1,6 +1,6 @@
 //! Provenance: the ordered key/value entries every output carries, and the one reader that
-//! finds them in any format (FITS header cards, Parquet key-value metadata, the CSV/TSV
-//! sidecar). The typed record of a run is one of these entries ([`super::record`]).
+//! finds them in any format (FITS header cards, Parquet key-value metadata, VOTable INFO
+//! elements, the ECSV table `meta`, the CSV/TSV sidecar). The typed record of a run is one of these entries ([`super::record`]).
 
 use std::path::{Path, PathBuf};
 
@@ -67,7 +67,7 @@ pub fn read_provenance(path: &Path, hdu: Option<&str>) -> Result<FoundProvenance
             let p = read_fits_provenance(path, hdu)?;
             Ok(found(
                 p.entries,
-                "FITS header cards PRVKnnn/PRVVnnn",
+                "FITS header cards PROVnnn",
                 "the FITS header has no provenance cards",
             ))
         }
@@ -104,6 +104,22 @@ pub fn read_provenance(path: &Path, hdu: Option<&str>) -> Result<FoundProvenance
                 entries,
                 &format!("sidecar {}", side.display()),
                 &format!("the sidecar {} has no provenance entries", side.display()),
+            ))
+        }
+        Format::VoTable => {
+            let p = super::votable::read_votable_provenance(path, hdu)?;
+            Ok(found(
+                p.entries,
+                "VOTable INFO elements of the table's RESOURCE",
+                "the VOTable has no INFO elements in the table's RESOURCE",
+            ))
+        }
+        Format::Ecsv => {
+            let p = super::ecsv::read_ecsv_provenance(path)?;
+            Ok(found(
+                p.entries,
+                "the ECSV header's table meta",
+                "the ECSV header has no table meta",
             ))
         }
         Format::Parquet => {

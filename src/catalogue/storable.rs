@@ -3,7 +3,8 @@
 //! A column flowsift does not use passes through to the output as it was read. Parquet
 //! holds every type polars reads. A FITS binary table holds numbers, booleans and text, so
 //! dates, times, durations and decimals are written there as their ISO 8601 / decimal text;
-//! CSV and TSV write dates and decimals as text themselves and durations as text here. A
+//! CSV and TSV write dates and decimals as text themselves and durations as text here;
+//! VOTable and ECSV outputs take what FITS takes. A
 //! nested column (struct, list, array) or binary data has no place in FITS, CSV or TSV: it
 //! is left out of such an output, and the run's summary names it.
 
@@ -27,7 +28,7 @@ fn fate(format: Format, dtype: &DataType) -> Fate {
     match format {
         Format::Parquet => Fate::Kept,
         _ if nested => Fate::LeftOut,
-        Format::Fits => match dtype {
+        Format::Fits | Format::VoTable | Format::Ecsv => match dtype {
             DataType::Date
             | DataType::Datetime(..)
             | DataType::Time

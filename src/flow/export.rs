@@ -141,6 +141,7 @@ pub fn export_table(
         ColumnMeta {
             unit: None,
             ucd: Some("meta.id".into()),
+            description: None,
         },
     );
     if let Some(name) = name_column(table) {
@@ -154,6 +155,7 @@ pub fn export_table(
             ColumnMeta {
                 unit: None,
                 ucd: Some("meta.id;meta.main".into()),
+                description: None,
             },
         );
     }
@@ -170,6 +172,7 @@ pub fn export_table(
             ColumnMeta {
                 unit: (!unit.is_empty()).then(|| unit.to_string()),
                 ucd: Some(ucd.to_string()),
+                description: None,
             },
         );
         columns.push(Column::new(name.as_str().into(), v));

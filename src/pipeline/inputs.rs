@@ -11,7 +11,7 @@ use crate::physics::sky::{parse_dec_deg, parse_ra_deg};
 use crate::plan::ColumnPlan;
 use crate::settings::{AngleUnit, RedshiftUnit};
 
-use super::status::RowStatus;
+use super::status::{RowStatus, Z_CEILING};
 use super::InputError;
 
 /// The columns the physics needs, one value per row. Missing values are NaN, and the row's
@@ -299,7 +299,7 @@ pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'
         {
             worst(s, RowStatus::PositionOutOfRange);
         }
-        if z_c[i] == 0 && z[i] <= -1.0 {
+        if z_c[i] == 0 && (z[i] <= -1.0 || z[i] > Z_CEILING) {
             worst(s, RowStatus::RedshiftOutOfRange);
         }
         if dist_c[i] == 0

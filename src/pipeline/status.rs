@@ -3,6 +3,12 @@
 
 use crate::physics::PhysicsError;
 
+/// The largest redshift a catalogue row may hold: last scattering is at z ≈ 1090 (Planck
+/// 2018 results VI, Table 2, from memory), so no galaxy, supernova or cluster lies beyond.
+/// A larger value is a typo or a mis-read column, and gets `RedshiftOutOfRange` rather
+/// than a distance table stretched to reach it.
+pub const Z_CEILING: f64 = 1100.0;
+
 /// Why a row has (or has not) derived values. The names are stable (written to `status`).
 #[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash)]
 #[repr(u8)]
@@ -15,7 +21,8 @@ pub enum RowStatus {
     MissingDistance,
     /// Declination outside [−90°, 90°] or right ascension outside [0°, 360°].
     PositionOutOfRange,
-    /// z ≤ −1, a non-positive CMB-frame redshift, or beyond the cosmology's table.
+    /// z ≤ −1, z above [`Z_CEILING`], a non-positive CMB-frame redshift, or beyond the
+    /// cosmology's table.
     RedshiftOutOfRange,
     /// D_L or D_C ≤ 0.
     NonPositiveDistance,

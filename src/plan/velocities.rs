@@ -83,13 +83,11 @@ pub fn sibling_path(output: &Path, tag: &str) -> PathBuf {
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_default();
     let lower = name.to_ascii_lowercase();
-    let ext_len = [
-        ".fits.gz", ".fit.gz", ".fits", ".fit", ".csv", ".tsv", ".parquet", ".pq",
-    ]
-    .iter()
-    .find(|e| lower.ends_with(*e))
-    .map(|e| e.len())
-    .unwrap_or(0);
+    let ext_len = crate::catalogue::EXTENSIONS
+        .iter()
+        .find(|e| lower.ends_with(*e))
+        .map(|e| e.len())
+        .unwrap_or(0);
     let (stem, ext) = name.split_at(name.len() - ext_len);
     output.with_file_name(format!("{stem}.{tag}{ext}"))
 }
@@ -113,8 +111,9 @@ pub(crate) fn table_output(files: &mut Files, role: &str, path: &Path) {
 pub(crate) fn format_of_output(path: &Path) -> Result<Format, super::PlanError> {
     Format::from_path(path).map_err(|_| {
         super::PlanError::Settings(format!(
-            "{}: unknown output type: use .fits/.fit/.fits.gz, .csv, .tsv or .parquet",
-            path.display()
+            "{}: unknown output type: {}",
+            path.display(),
+            crate::catalogue::FORMATS_HINT
         ))
     })
 }

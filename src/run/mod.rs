@@ -300,7 +300,8 @@ pub fn run_velocities(
     // Groups combine the members' own distances: keep them when Malmquist changes them.
     let uncorrected_distance =
         (cfg.groups.is_some() && cfg.malmquist.is_some()).then(|| input.distance.clone());
-    let cosmology = cosmology_reaching(shared.cosmology.params, top_redshift(&input))?;
+    let cosmology =
+        cosmology_reaching(shared.cosmology.params, top_redshift(&input)).map_err(where_)?;
     let ctx = object_context(shared, &cosmology, columns.length_unit);
     let mut notes = shared.cautions();
     notes.extend(table.notes.iter().cloned());

@@ -38,7 +38,16 @@ const BATCHES_PER_WRITE: usize = 4;
 /// with types inferred from every row, so that such a column is read as text and each entry
 /// is checked by the pipeline (a per-row status, not a failure).
 pub fn read_delimited(path: &Path, separator: u8) -> Result<Table, CatalogueError> {
-    read(path, separator, false).map(|(table, _)| table)
+    read(path, separator, false, false).map(|(table, _)| table)
+}
+
+/// As [`read_delimited`], with every column read as text exactly as written (an empty field
+/// as null, no other word taken for one), for a reader that knows the types from elsewhere
+/// (the ECSV header). No note about the comment lines before the header is made.
+pub fn read_delimited_as_text(path: &Path, separator: u8) -> Result<Table, CatalogueError> {
+    let (mut table, _) = read(path, separator, false, true)?;
+    table.notes.retain(|n| !n.contains("comment line(s)"));
+    Ok(table)
 }
 
 /// As [`read_delimited`], and also the file's text when it can be copied into an output
@@ -48,13 +57,14 @@ pub fn read_delimited_keeping_text(
     path: &Path,
     separator: u8,
 ) -> Result<(Table, Option<SourceText>), CatalogueError> {
-    read(path, separator, true)
+    read(path, separator, true, false)
 }
 
 fn read(
     path: &Path,
     separator: u8,
     keep_text: bool,
+    as_text: bool,
 ) -> Result<(Table, Option<SourceText>), CatalogueError> {
     let file = File::open(path).map_err(|e| CatalogueError::read(path, e.to_string()))?;
     let empty = file.metadata().map(|m| m.len() == 0).unwrap_or(false);
@@ -78,12 +88,14 @@ fn read(
         &cleaned
     };
     let parse = |infer: Option<usize>| {
-        options(separator, layout.eol, infer)
+        options(separator, layout.eol, infer, as_text)
             .with_has_header(true)
             .into_reader_with_file_handle(std::io::Cursor::new(text))
             .finish()
     };
-    let mut frame = match parse(Some(INFER_ROWS)) {
+    // No rows inferred: every column is text.
+    let first = if as_text { Some(0) } else { Some(INFER_ROWS) };
+    let mut frame = match parse(first) {
         Ok(f) => f,
         Err(_) => parse(None).map_err(|e| {
             CatalogueError::read(path, format!("cannot read as delimited text: {e}"))
@@ -141,16 +153,19 @@ fn read(
 
 /// The parse options shared by every way of reading: no comment prefix (comments before
 /// the header are cut off by [`layout`]), the file's own line break.
-fn options(separator: u8, eol: u8, infer: Option<usize>) -> CsvReadOptions {
+fn options(separator: u8, eol: u8, infer: Option<usize>, as_text: bool) -> CsvReadOptions {
+    let words: Vec<PlSmallStr> = if as_text {
+        vec!["".into()]
+    } else {
+        NULL_WORDS.iter().map(|w| (*w).into()).collect()
+    };
     CsvReadOptions::default()
         .with_infer_schema_length(infer)
         .map_parse_options(|p| {
             p.with_separator(separator)
                 .with_eol_char(eol)
                 .with_missing_is_null(true)
-                .with_null_values(Some(NullValues::AllColumns(
-                    NULL_WORDS.iter().map(|w| (*w).into()).collect(),
-                )))
+                .with_null_values(Some(NullValues::AllColumns(words.clone())))
         })
 }
 

@@ -1,5 +1,6 @@
 //! Header cards: keyword values read and written as text (long-string convention), the
-//! provenance cards, and the `%XX` escaping of header text.
+//! provenance cards (`PROVnnn`, and the earlier `PRVKnnn`/`PRVVnnn` with their `%XX`
+//! escaping, still read) and the HISTORY lines.
 
 use std::ffi::{CStr, CString};
 use std::os::raw::{c_char, c_int};
@@ -10,7 +11,7 @@ use fitsio::sys;
 use super::hdu::HduSummary;
 use super::{KEY_NO_EXIST, MAX_PROVENANCE_ENTRIES};
 use crate::catalogue::cfitsio::{ok, status_text, FitsHandle};
-use crate::catalogue::Provenance;
+use crate::catalogue::{ascii, Provenance};
 
 // ---------------------------------------------------------------------------------------------
 // Header and table calls on the shared cfitsio handle
@@ -75,18 +76,45 @@ impl FitsHandle {
     }
 }
 
+/// Read the provenance cards: `PROVnnn` (`key: value`) in order, stopping at the first
+/// missing number; a header without `PROV001` is read in the earlier layout, `PRVKnnn`
+/// (key) and `PRVVnnn` (value), %-escaped.
 pub(super) fn read_provenance_cards(
     file: &FitsHandle,
     hdu: &HduSummary,
 ) -> Result<Provenance, String> {
     let here = hdu.label();
+    let read = |card: &str| {
+        file.key_text(card)
+            .map_err(|s| format!("{here}: cannot read keyword {card}: {}", status_text(s)))
+    };
     let mut entries = Vec::new();
     for i in 1..=MAX_PROVENANCE_ENTRIES {
-        let (key_card, value_card) = provenance_keywords(i);
-        let read = |card: &str| {
-            file.key_text(card)
-                .map_err(|s| format!("{here}: cannot read keyword {card}: {}", status_text(s)))
+        let card = provenance_keyword(i);
+        let Some(text) = read(&card)? else { break };
+        let (key, value) = match text.split_once(": ") {
+            Some((k, v)) => (k.to_string(), v.to_string()),
+            None => match text.strip_suffix(':') {
+                Some(k) => (k.to_string(), String::new()),
+                None => {
+                    return Err(format!(
+                        "{here}: keyword {card} = '{text}' is not 'key: value'"
+                    ))
+                }
+            },
         };
+        let value = if ascii::is_json(&value) {
+            ascii::json_from_ascii(&value)
+        } else {
+            value
+        };
+        entries.push((key, value));
+    }
+    if !entries.is_empty() {
+        return Ok(Provenance { entries });
+    }
+    for i in 1..=MAX_PROVENANCE_ENTRIES {
+        let (key_card, value_card) = (format!("PRVK{i:03}"), format!("PRVV{i:03}"));
         let Some(key) = read(&key_card)? else { break };
         let value = read(&value_card)?
             .ok_or_else(|| format!("{here}: keyword {key_card} has no matching {value_card}"))?;
@@ -104,11 +132,12 @@ pub(super) fn header_text_ok(s: &str) -> bool {
     s.bytes().all(|b| (0x20..=0x7e).contains(&b))
 }
 
-fn provenance_keywords(i: usize) -> (String, String) {
-    (format!("PRVK{i:03}"), format!("PRVV{i:03}"))
+fn provenance_keyword(i: usize) -> String {
+    format!("PROV{i:03}")
 }
 
-/// Header cards (keyword, escaped text, comment) for the provenance entries.
+/// Header cards (keyword, `key: value` text, comment) for the provenance entries: printable
+/// ASCII ([`ascii::to_ascii`]; JSON values by [`ascii::json_to_ascii`], exact).
 pub(super) fn provenance_cards(
     provenance: &Provenance,
 ) -> Result<Vec<(String, String, &'static str)>, String> {
@@ -118,20 +147,53 @@ pub(super) fn provenance_cards(
             provenance.entries.len()
         ));
     }
-    let mut cards = Vec::with_capacity(2 * provenance.entries.len());
+    let mut cards = Vec::with_capacity(provenance.entries.len());
     for (i, (key, value)) in provenance.entries.iter().enumerate() {
-        let (key_card, value_card) = provenance_keywords(i + 1);
-        cards.push((key_card, escape(key), "provenance key"));
-        cards.push((value_card, escape(value), "provenance value"));
+        let key = ascii::to_ascii(key);
+        if key.contains(": ") || key.is_empty() {
+            return Err(format!(
+                "provenance key '{key}' cannot go in a PROVnnn card (empty, or holding ': ')"
+            ));
+        }
+        let value = if ascii::is_json(value) {
+            ascii::json_to_ascii(value)
+        } else {
+            ascii::to_ascii(value)
+        };
+        cards.push((
+            provenance_keyword(i + 1),
+            format!("{key}: {value}"),
+            "provenance",
+        ));
     }
     Ok(cards)
+}
+
+/// HISTORY lines a person reads: the software and step, then one line per short setting
+/// (structured values and the run record stay in the PROVnnn cards only).
+pub(super) fn history_lines(provenance: &Provenance) -> Vec<String> {
+    let software = provenance.get("software").unwrap_or("flowsift");
+    let step = provenance.get("stage").unwrap_or("");
+    let lead = format!("{software} {step}").trim().to_string();
+    provenance
+        .entries
+        .iter()
+        .filter(|(k, v)| {
+            !matches!(k.as_str(), "software" | "stage" | "record")
+                && !ascii::is_json(v)
+                && v.chars().count() <= 200
+        })
+        .map(|(k, v)| ascii::to_ascii(&format!("{lead}: {k} = {v}")))
+        .collect()
 }
 
 // ---------------------------------------------------------------------------------------------
 // Header text escaping
 // ---------------------------------------------------------------------------------------------
 
-/// `%XX`-escape `%`, bytes outside printable ASCII and trailing blanks.
+/// `%XX`-escape `%`, bytes outside printable ASCII and trailing blanks (the earlier
+/// layout's writer, kept for the tests of its reader).
+#[cfg(test)]
 fn escape(text: &str) -> String {
     let bytes = text.as_bytes();
     let keep = bytes.iter().rposition(|&b| b != b' ').map_or(0, |p| p + 1);

@@ -56,17 +56,22 @@
 //!
 //! # Provenance keywords
 //!
-//! Entry *i* (1-based) of a [`Provenance`] becomes two header cards in the table HDU:
-//! `PRVKnnn` holding the key and `PRVVnnn` holding the value, `nnn` being *i* written with at
-//! least three digits (`PRVK001` … `PRVK999`, then `PRVK1000` … `PRVK9999`; more than 9999
-//! entries is an error). Values longer than one card use the HEASARC long-string convention
-//! (`&` and `CONTINUE` cards, announced by `LONGSTRN = 'OGIP 1.0'`), which cfitsio reads back
-//! whole. Because header text must be printable ASCII and loses trailing blanks, keys and
-//! values are escaped: `%`, every byte outside 0x20–0x7E (so UTF-8 text too) and trailing
-//! blanks are written `%XX` (upper-case hex of the UTF-8 byte). Two `COMMENT` cards in the
-//! header describe the scheme. [`read_fits_provenance`] reads the pairs back in order (it
-//! stops at the first missing `PRVKnnn`) and undoes the escaping, so entries round-trip
-//! exactly.
+//! Entry *i* (1-based) of a [`Provenance`] becomes one header card `PROVnnn` in the table
+//! HDU whose value is `key: value`, `nnn` being *i* written with at least three digits
+//! (`PROV001` … `PROV999`, then `PROV1000` … `PROV9999`; more than 9999 entries is an
+//! error). Values longer than one card use the HEASARC long-string convention (`&` and
+//! `CONTINUE` cards, announced by `LONGSTRN = 'OGIP 1.0'`), which cfitsio reads back whole.
+//! Header text must be printable ASCII, so text is made ASCII by [`crate::catalogue::ascii`]:
+//! Greek letters and signs are spelled out from one table (`flat ΛCDM` → `flat LambdaCDM`,
+//! `±` → `+/-`), anything else becomes `\uXXXX`; such entries read back in their ASCII
+//! form. Entries whose value is JSON (the run record, structured settings) keep every
+//! character: non-ASCII characters inside their strings are written as JSON `\uXXXX`
+//! escapes, which the reader undoes, so they round-trip exactly. Trailing blanks of a value
+//! are lost (FITS strings drop them). Two `COMMENT` cards describe the scheme, and HISTORY
+//! cards repeat the short settings as sentences (`flowsift 0.1.0 velocities: cosmology =
+//! …`). [`read_fits_provenance`] reads the `PROVnnn` cards in order (it stops at the first
+//! missing number); a file without them is read in the earlier layout, `PRVKnnn` (key) and
+//! `PRVVnnn` (value) with `%XX` escapes, which is still understood.
 //!
 //! The code is in four parts: `hdu` (opening a file's HDU list and choosing the table),
 //! `read` (column decoding and raw row blocks), `write` (column definitions and row blocks)
@@ -83,7 +88,7 @@ mod hdu;
 mod read;
 mod write;
 
-use cards::{provenance_cards, read_provenance_cards};
+use cards::{history_lines, provenance_cards, read_provenance_cards};
 use hdu::select_hdu;
 use read::read_table_hdu;
 use write::{prepare_columns, write_table_hdu};
@@ -91,7 +96,7 @@ use write::{prepare_columns, write_table_hdu};
 /// `EXTNAME` of the table HDU that [`write_fits`] creates.
 pub const EXTNAME: &str = "FLOWSIFT";
 
-/// Most provenance entries [`write_fits`] can store (`PRVK9999` is the last 8-character key).
+/// Most provenance entries [`write_fits`] can store (`PROV9999` is the last 8-character key).
 pub const MAX_PROVENANCE_ENTRIES: usize = 9999;
 
 // cfitsio constants, as the C `int`s the functions take.
@@ -164,7 +169,8 @@ fn check_size_against_file(file: &FitsHandle, path: &Path) -> Result<(), String>
     }
 }
 
-/// Read the provenance entries that [`write_fits`] stored (`PRVKnnn`/`PRVVnnn` cards) from the
+/// Read the provenance entries that [`write_fits`] stored (`PROVnnn` cards, or the earlier
+/// `PRVKnnn`/`PRVVnnn` pairs) from the
 /// HDU `hdu` selects (same rules as [`read_fits`]). A table without such cards gives an empty
 /// [`Provenance`].
 pub fn read_fits_provenance(path: &Path, hdu: Option<&str>) -> Result<Provenance, CatalogueError> {
@@ -176,7 +182,7 @@ pub fn read_fits_provenance(path: &Path, hdu: Option<&str>) -> Result<Provenance
 
 /// Write `table` as a new FITS file at `path` (which must not exist): an empty primary HDU and
 /// one binary table, `EXTNAME = 'FLOWSIFT'`, with `TUNITn`/`TUCDn` from `table.meta` and the
-/// provenance as `PRVKnnn`/`PRVVnnn` cards. A name ending in `.gz` gives a gzip-compressed
+/// provenance as `PROVnnn` cards and HISTORY lines. A name ending in `.gz` gives a gzip-compressed
 /// file. On error nothing is left at `path`.
 pub fn write_fits(
     path: &Path,
@@ -192,16 +198,18 @@ pub fn write_fits(
     // Everything that can be refused is checked before the file is created.
     let columns = prepare_columns(table).map_err(err)?;
     let cards = provenance_cards(provenance).map_err(err)?;
+    let history = history_lines(provenance);
     let compress = path
         .file_name()
         .map(|n| n.to_string_lossy().to_ascii_lowercase().ends_with(".gz"))
         .unwrap_or(false);
 
     let file = FitsHandle::create(path, compress).map_err(err)?;
-    let result = write_table_hdu(&file, table.frame.height(), &columns, &cards).and_then(|()| {
-        file.close()
-            .map_err(|s| format!("cannot finish writing the file: {}", status_text(s)))
-    });
+    let result =
+        write_table_hdu(&file, table.frame.height(), &columns, &cards, &history).and_then(|()| {
+            file.close()
+                .map_err(|s| format!("cannot finish writing the file: {}", status_text(s)))
+        });
     if let Err(message) = result {
         // A failed close has already released the handle; otherwise dropping it closes it.
         let _ = std::fs::remove_file(path);

@@ -265,7 +265,14 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
         let unit = text(format!("TUNIT{number}"))?;
         let ucd = text(format!("TUCD{number}"))?;
         if unit.is_some() || ucd.is_some() {
-            meta.insert(name.clone(), ColumnMeta { unit, ucd });
+            meta.insert(
+                name.clone(),
+                ColumnMeta {
+                    unit,
+                    ucd,
+                    description: None,
+                },
+            );
         }
         // Raw-byte decoding needs the cell's place in the row, and no scaling or null value.
         let plain = ["TSCAL", "TZERO", "TNULL"]

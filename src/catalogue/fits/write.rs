@@ -152,6 +152,7 @@ pub(super) fn write_table_hdu(
     nrows: usize,
     columns: &[WriteColumn],
     provenance: &[(String, String, &'static str)],
+    history: &[String],
 ) -> Result<(), String> {
     let fptr = file.raw();
     let fail = |what: &str, s: c_int| format!("{what}: {}", status_text(s));
@@ -224,8 +225,8 @@ pub(super) fn write_table_hdu(
     }
     if !provenance.is_empty() {
         let comments = [
-            "Provenance: entry nnn is PRVKnnn (key) = PRVVnnn (value). '%', bytes",
-            "outside printable ASCII and trailing blanks are written %XX (hex, UTF-8).",
+            "Provenance: entry nnn is PROVnnn = 'key: value', in ASCII (Greek letters",
+            "and signs spelled out, other characters \\uXXXX; JSON values exact).",
         ];
         for c in comments {
             file.write_comment(c)
@@ -235,6 +236,10 @@ pub(super) fn write_table_hdu(
             file.write_key_text(keyword, text, Some(comment))
                 .map_err(|s| fail(&format!("cannot write provenance keyword {keyword}"), s))?;
         }
+    }
+    for line in history {
+        file.write_history(line)
+            .map_err(|s| fail("cannot write a HISTORY card", s))?;
     }
     // SAFETY: open handle; re-reads the header so cfitsio knows the new TNULLn cards.
     unsafe { sys::ffrdef(fptr, &mut status) };
