@@ -2,6 +2,7 @@
 //! `overlay` (flags over file) and, for cosmology and frames, the resolution into validated
 //! physics objects. Nothing here reads files; `plan` resolves these against the inputs.
 
+mod apex_file;
 mod columns;
 mod conventions;
 mod cosmology;
@@ -25,6 +26,7 @@ pub use crate::physics::restframe::apex_table;
 pub use crate::physics::restframe::BoostMethod;
 pub use crate::physics::restframe::GivenFrame;
 pub use crate::physics::sky::InputSkyFrame;
+pub use apex_file::{parse_apex_file, ApexEntry};
 pub use columns::{AngleUnit, ColumnChoice, RedshiftUnit};
 pub use conventions::{cautions, ConventionChoice};
 pub use cosmology::{CosmologyChoice, ResolvedCosmology};
