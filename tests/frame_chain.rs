@@ -382,3 +382,62 @@ fn the_record_keeps_the_apices_used() {
         .iter()
         .any(|(k, v)| k == "apices_used" && v.contains("yahil1977")));
 }
+
+/// The apex file is an input: no output may overwrite it, even with --force; and a later
+/// step on the output inherits the file's apex from the record without reading the file.
+#[test]
+fn the_apex_file_is_an_input_and_travels_in_the_record() {
+    let dir = tempfile::tempdir().unwrap();
+    let survey = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("demo-data/lantern_survey.csv");
+    let apices = dir.path().join("apices.csv");
+    std::fs::copy(example_file(), &apices).unwrap();
+    let before = std::fs::read(&apices).unwrap();
+    let out = flowsift()
+        .arg("velocities")
+        .arg(&survey)
+        .arg("-o")
+        .arg(&apices)
+        .arg("--force")
+        .arg("--apex-file")
+        .arg(&apices)
+        .output()
+        .unwrap();
+    assert!(!out.status.success());
+    assert!(String::from_utf8_lossy(&out.stderr).contains("apex file"));
+    assert_eq!(std::fs::read(&apices).unwrap(), before);
+
+    let first = dir.path().join("v.csv");
+    let out = flowsift()
+        .arg("velocities")
+        .arg(&survey)
+        .arg("-o")
+        .arg(&first)
+        .args(["--local-group", "yahil1977", "--apex-file"])
+        .arg(&apices)
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    std::fs::remove_file(&apices).unwrap();
+    let out = flowsift()
+        .arg("outliers")
+        .arg(&first)
+        .arg("-o")
+        .arg(dir.path().join("o.csv"))
+        .output()
+        .unwrap();
+    assert!(
+        out.status.success(),
+        "{}",
+        String::from_utf8_lossy(&out.stderr)
+    );
+    let said = format!(
+        "{}{}",
+        String::from_utf8_lossy(&out.stdout),
+        String::from_utf8_lossy(&out.stderr)
+    );
+    assert!(said.contains("'yahil1977'"), "{said}");
+}

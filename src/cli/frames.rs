@@ -6,9 +6,8 @@ use anyhow::anyhow;
 use clap::Args;
 use serde_json::json;
 
-use flowsift::physics::restframe::{chain_sum, cmb_dipoles, Apex, ChainStep};
 use flowsift::plan::Shared;
-use flowsift::settings::{RunConfig, PRESETS};
+use flowsift::settings::{chain_sum, cmb_dipoles, Apex, ChainStep, RunConfig, PRESETS};
 
 use super::options::FrameFlags;
 
