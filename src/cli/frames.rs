@@ -114,7 +114,7 @@ fn print_step(s: &ChainStep) {
         Some(m) => format!("apex '{}' minus apex '{m}'", s.apex.name),
         None => format!("apex '{}'", s.apex.name),
     };
-    println!("      {whence}; '{}': {}", s.apex.name, s.apex.source);
+    println!("      = {whence}; '{}' from {}", s.apex.name, s.apex.source);
     if let Some(f) = &s.apex.file {
         println!("      ('{}' from the apex file {f})", s.apex.name);
     }

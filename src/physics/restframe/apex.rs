@@ -117,11 +117,6 @@ impl Apex {
             .expect("apex directions are validated on construction");
         d.at_distance(self.speed_km_s)
     }
-
-    /// Whether the apex is one of flowsift's own table.
-    pub fn is_built_in(&self) -> bool {
-        self.file.is_none() && apex_table().iter().any(|a| a == self)
-    }
 }
 
 /// Solar motion relative to the LSR, (U, V, W) km/s, U towards the Galactic centre, V in
