@@ -5,7 +5,7 @@ use clap::Args;
 use serde_json::json;
 
 use flowsift::plan::galaxy::{plan_galaxy, GalaxyOrder};
-use flowsift::run::galaxy::run_galaxy;
+use flowsift::run::galaxy::{run_galaxy, ChainRedshift};
 use flowsift::settings::{DistanceKind, RunConfig};
 
 use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
@@ -163,7 +163,6 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
     let report = run_galaxy(&plan).map_err(|e| anyhow!(e))?;
     let r = &report.result;
     let (ra, dec, z_helio) = (plan.ra_deg, plan.dec_deg, plan.z_helio);
-    let (z_lg, z_gsr, z_lsr) = (report.z_lg, report.z_gsr, report.z_lsr);
     let frames = &plan.shared.frames;
     let cosmo_choice = &plan.shared.cosmology;
     let convention = plan.shared.convention;
@@ -186,16 +185,13 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
             "z_cmb": r.z_cmb, "z_cos": r.z_cos, "z_pec": r.z_pec,
             "v_pec": r.v_pec,
             "d_c": r.d_c, "d_l": r.d_l, "eta": r.eta,
-            "z_lg": z_lg, "z_gsr": z_gsr, "z_lsr": z_lsr,
+            "frame_chain": chain_json(&report.chain),
             "v_pec_low_z": r.v_pec_low_z,
             "v_pec_watkins_feldman": r.v_pec_watkins_feldman,
             "distance": {"kind": kind.name(), "value": value, "error": error},
             "length_unit": unit,
             "dl_convention": convention.name(),
             "boost": frames.method.name(),
-            "apex": frames.cmb_apex,
-            "local_group_apex": frames.local_group_apex.name,
-            "galactic_rest_apex": frames.galactic_rest_apex.name,
             "cosmology": cosmo_choice,
             "cautions": notes,
         });
@@ -209,7 +205,7 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
         return Ok(());
     }
     let f = |x: f64, p: usize| format!("{x:.p$}");
-    let mut rows = vec![
+    let place = [
         row(
             "glon, glat",
             format!("{:.5}, {:.5}", r.glon, r.glat),
@@ -220,29 +216,12 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
             format!("{:.5}, {:.5}", r.sgl, r.sgb),
             "deg, supergalactic",
         ),
-        row("z_helio", f(z_helio, 7), "heliocentric (input)"),
-        row(
-            "z_cmb",
-            f(r.z_cmb, 7),
-            &format!(
-                "CMB frame, '{}' apex, {} boost",
-                frames.cmb_apex.name,
-                frames.method.name()
-            ),
-        ),
-        row(
-            "z_lg",
-            f(z_lg, 7),
-            &format!("Local Group frame, '{}' apex", frames.local_group_apex.name),
-        ),
-        row(
-            "z_gsr",
-            f(z_gsr, 7),
-            &format!(
-                "Galactic standard of rest, '{}' apex",
-                frames.galactic_rest_apex.name
-            ),
-        ),
+    ];
+    print_rows("flowsift galaxy", &place);
+    println!();
+    print_chain(z_helio, &report.chain, frames.method.name());
+    println!();
+    let mut rows = vec![
         row(
             "z_cos",
             f(r.z_cos, 7),
@@ -282,10 +261,80 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
             row("eta_err", f(r.eta_err, 5), "first order"),
         );
     }
-    print_rows("flowsift galaxy", &rows);
+    print_rows("Peculiar velocity", &rows);
     println!();
     for n in notes {
         println!("note: {n}");
     }
     Ok(())
+}
+
+/// The chain as JSON: one object per boost, with the redshift once it is applied.
+fn chain_json(chain: &[ChainRedshift]) -> serde_json::Value {
+    serde_json::Value::Array(
+        chain
+            .iter()
+            .map(|c| {
+                json!({
+                    "from": c.step.from,
+                    "to": c.step.to,
+                    "velocity_km_s": c.step.velocity_km_s,
+                    "speed_km_s": c.step.speed_km_s,
+                    "l_deg": c.step.l_deg,
+                    "b_deg": c.step.b_deg,
+                    "cos_theta": c.cos_theta,
+                    "apex": c.step.apex,
+                    "minus_apex": c.step.minus,
+                    "z": c.z,
+                })
+            })
+            .collect(),
+    )
+}
+
+/// One line per boost with the redshift after it, each apex's source below.
+fn print_chain(z_helio: f64, chain: &[ChainRedshift], method: &str) {
+    println!(
+        "Boosts, Sun → CMB (velocity of each frame relative to the next, km/s, Galactic x, y, z):"
+    );
+    println!(
+        "  {:<15} {:>57}  z = {z_helio:.7}  (input)",
+        "heliocentric", ""
+    );
+    let last = chain.len().saturating_sub(1);
+    for (k, c) in chain.iter().enumerate() {
+        let s = &c.step;
+        let dir = match (s.l_deg, s.b_deg) {
+            (Some(l), Some(b)) => format!("l = {l:>7.3}°, b = {b:>7.3}°"),
+            _ => "no motion".to_string(),
+        };
+        let [x, y, zc] = s.velocity_km_s.map(shown);
+        let label = if k == last { "z_cmb" } else { "z" };
+        println!(
+            "  → {:<13} {:>7.2} km/s  {dir}  ({x:>7.2}, {y:>7.2}, {zc:>7.2})  {label} = {:.7}  cos θ = {:+.4}",
+            s.to, s.speed_km_s, c.z, c.cos_theta
+        );
+        let whence = match &s.minus {
+            Some(m) => format!("apex '{}' minus apex '{m}'", s.apex.name),
+            None => format!("apex '{}'", s.apex.name),
+        };
+        println!("      {whence}: {}", s.apex.source);
+        if let Some(file) = &s.apex.file {
+            println!("      (from the apex file {file})");
+        }
+    }
+    println!(
+        "  Each boost is the difference of the Sun's velocities relative to two consecutive \
+         frames (the apices); each redshift is the exact boost from the Sun's frame by that \
+         frame's apex ({method} boost for the CMB)."
+    );
+}
+
+/// A component for display: rounding noise below the printed precision shows as 0.
+fn shown(x: f64) -> f64 {
+    if x.abs() < 5e-3 {
+        0.0
+    } else {
+        x
+    }
 }

@@ -52,7 +52,8 @@ pub enum Command {
     Mock(Box<mock::MockArgs>),
     /// FLRW distances (D_C, D_M, D_L, D_A, μ) at given redshifts.
     Distances(distances::DistancesArgs),
-    /// The rest-frame apices and cosmology presets flowsift knows, with their sources.
+    /// The chain of boosts between rest frames, the apices to choose from and the cosmology
+    /// presets, with their sources.
     Frames(frames::FramesArgs),
     /// Run flowsift on the shipped invented survey and print what it finds.
     Demo(demo::DemoArgs),

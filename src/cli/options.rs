@@ -81,7 +81,8 @@ impl CosmologyFlags {
 /// Rest-frame flags.
 #[derive(Debug, Clone, Default, Args)]
 pub struct FrameFlags {
-    /// Named CMB dipole: planck2018 (default), planck2013 or cobe-firas. See `flowsift frames`.
+    /// Named CMB dipole measurement: planck2018 (default), planck2013, cobe-firas, or a cmb
+    /// entry of --apex-file. See `flowsift frames`.
     #[arg(
         long,
         value_name = "NAME",
@@ -96,6 +97,24 @@ pub struct FrameFlags {
     /// legacy-additive (cz + v cos θ; only to reproduce older catalogues).
     #[arg(long, value_enum, value_name = "METHOD", help_heading = "Rest frame")]
     pub boost: Option<BoostArg>,
+    /// A TOML file of your own apices ([[apex]] tables), selectable by name with --dipole,
+    /// --local-group, --galactic-rest and --lsr. See demo-data/apices.example.toml.
+    #[arg(long = "apex-file", value_name = "FILE", help_heading = "Rest frame")]
+    pub apex_file: Option<std::path::PathBuf>,
+    /// Local Group apex by name: courteau-vandenbergh1999 (default) or an entry of --apex-file.
+    #[arg(long = "local-group", value_name = "NAME", help_heading = "Rest frame")]
+    pub local_group: Option<String>,
+    /// Galactic-rest apex by name: schoenrich2010-eilers2019 (default) or an entry of
+    /// --apex-file.
+    #[arg(
+        long = "galactic-rest",
+        value_name = "NAME",
+        help_heading = "Rest frame"
+    )]
+    pub galactic_rest: Option<String>,
+    /// LSR apex by name: schoenrich2010 (default) or an entry of --apex-file.
+    #[arg(long, value_name = "NAME", help_heading = "Rest frame")]
+    pub lsr: Option<String>,
 }
 
 #[derive(Debug, Clone, Copy, ValueEnum)]
@@ -113,8 +132,11 @@ impl FrameFlags {
                 BoostArg::Exact => BoostMethod::Exact,
                 BoostArg::LegacyAdditive => BoostMethod::LegacyAdditive,
             }),
-            local_group: None,
-            galactic_rest: None,
+            local_group: self.local_group.clone(),
+            galactic_rest: self.galactic_rest.clone(),
+            lsr: self.lsr.clone(),
+            apex_file: self.apex_file.as_ref().map(|p| p.display().to_string()),
+            apices: vec![],
         }
     }
 }

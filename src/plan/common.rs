@@ -42,6 +42,9 @@ impl Shared {
             _ => None,
         };
         let name = input.map(|p| p.display().to_string()).unwrap_or_default();
+        let mut user = user.clone();
+        user.frame = super::apex_file::with_apex_file(&user.frame)?;
+        let user = &user;
         let Settled {
             config,
             overridden,
@@ -119,6 +122,27 @@ impl Shared {
             glat_deg: a.glat_deg,
             source: a.source.clone(),
         });
+        // Every apex of the chain with its numbers and source; a user apex file by path
+        // (its entries used are also kept in settings.frame.apices).
+        let apices: Vec<_> = self
+            .frames
+            .chain_apices()
+            .into_iter()
+            .map(|a| {
+                serde_json::json!({
+                    "frame": a.frame, "name": a.name, "speed_km_s": a.speed_km_s,
+                    "glon_deg": a.glon_deg, "glat_deg": a.glat_deg, "source": a.source,
+                    "file": a.file,
+                })
+            })
+            .collect();
+        r.details.insert(
+            "apices_used".into(),
+            serde_json::Value::Array(apices).to_string(),
+        );
+        if let Some(f) = &self.config.frame.apex_file {
+            r.details.insert("apex_file".into(), f.clone());
+        }
         r.overridden = self.overridden.clone();
         r.previous = self.previous.clone().map(Box::new);
         r

@@ -71,6 +71,9 @@ pub fn plan_correct(order: CorrectOrder) -> Result<CorrectPlan, super::PlanError
     if let Some(p) = &order.model.density {
         files.read("density grid", std::path::Path::new(p));
     }
+    if let Some(p) = &order.flags.frame.apex_file {
+        files.read("apex file", std::path::Path::new(p));
+    }
     table_output(&mut files, "output", &order.output);
     files.check(order.force)?;
     let shared = Shared::resolve(

@@ -72,18 +72,7 @@ pub fn settle(
         b.overlay(&user.frame)
     };
     if user.frame != FrameChoice::default() {
-        let key = |f: &FrameChoice| {
-            f.resolve().ok().map(|r| {
-                (
-                    r.cmb_apex.speed_km_s,
-                    r.cmb_apex.glon_deg,
-                    r.cmb_apex.glat_deg,
-                    r.method,
-                    r.local_group_apex.name,
-                    r.galactic_rest_apex.name,
-                )
-            })
-        };
+        let key = |f: &FrameChoice| f.resolve().ok().map(|r| r.signature());
         if key(&base.frame) != key(&config.frame) {
             conflicts.push(format!(
                 "rest frame: the input was made with {}; given {}",

@@ -3,6 +3,7 @@
 //! columns and units resolved against the file's header, every file checked — before any
 //! work, with every conflict reported at once. The run layer takes only plans.
 
+pub mod apex_file;
 pub mod columns;
 pub mod common;
 pub mod correct;

@@ -12,7 +12,14 @@ pub fn merge_run_file(
     let file = match run_file {
         Some(p) => {
             let text = std::fs::read_to_string(p).map_err(|e| format!("{}: {e}", p.display()))?;
-            RunConfig::from_toml(&text, &p.display().to_string())?
+            let mut cfg = RunConfig::from_toml(&text, &p.display().to_string())?;
+            // An apex file named in a run file is found beside the run file.
+            if let (Some(f), Some(dir)) = (&cfg.frame.apex_file, p.parent()) {
+                if Path::new(f).is_relative() {
+                    cfg.frame.apex_file = Some(dir.join(f).display().to_string());
+                }
+            }
+            cfg
         }
         None => RunConfig::default(),
     };

@@ -54,6 +54,9 @@ pub fn plan_stage(order: StageOrder) -> Result<StagePlan, super::PlanError> {
     for (role, p) in &order.other_inputs {
         files.read(role, p);
     }
+    if let Some(p) = &order.flags.frame.apex_file {
+        files.read("apex file", std::path::Path::new(p));
+    }
     if let Some(o) = &order.output {
         if o.extension()
             .is_some_and(|e| e.eq_ignore_ascii_case("json"))

@@ -209,6 +209,9 @@ pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, super::Plan
     if let Some(p) = &order.run_file {
         files.read("run file", p);
     }
+    if let Some(p) = &user.frame.apex_file {
+        files.read("apex file", std::path::Path::new(p));
+    }
     if let Some(p) = &profile {
         files.read("Malmquist profile", p);
     }

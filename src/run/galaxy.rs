@@ -1,21 +1,32 @@
-//! `galaxy`: one object through the same physics as a catalogue row, with the redshift in
-//! the other rest frames for reference.
+//! `galaxy`: one object through the same physics as a catalogue row, with its redshift after
+//! each boost of the chain Sun → LSR → Galactic rest → Local Group → CMB.
 
 use crate::physics::estimators::Distance;
 use crate::physics::object::{evaluate, ObjectInput, ObjectResult};
 use crate::physics::redshift::{Heliocentric, Redshift};
+use crate::physics::restframe::ChainStep;
 use crate::physics::sky::{Direction, Icrs};
 use crate::plan::galaxy::GalaxyPlan;
 
 use super::cosmology_reaching;
 
+/// One boost of the chain with the object's redshift once it is applied.
+#[derive(Debug, Clone)]
+pub struct ChainRedshift {
+    pub step: ChainStep,
+    /// The redshift in the step's arrival frame: the exact boost from the Sun's frame by
+    /// that frame's apex (for the CMB, the run's z_cmb, by the run's boost method).
+    pub z: f64,
+    /// cos θ between the object and the step's velocity (0 for a zero step).
+    pub cos_theta: f64,
+}
+
 /// Everything `galaxy` reports.
 #[derive(Debug, Clone)]
 pub struct GalaxyReport {
     pub result: ObjectResult,
-    pub z_lg: f64,
-    pub z_gsr: f64,
-    pub z_lsr: f64,
+    /// Sun → LSR → Galactic rest → Local Group → CMB.
+    pub chain: Vec<ChainRedshift>,
     pub cautions: Vec<String>,
 }
 
@@ -45,19 +56,35 @@ pub fn run_galaxy(plan: &GalaxyPlan) -> Result<GalaxyReport, super::RunError> {
             .map_err(|e| e.to_string())?,
     );
     let zh = Redshift::<Heliocentric>::new(plan.z_helio).map_err(|e| e.to_string())?;
+    let f = &shared.frames;
+    let after = [
+        f.lsr.from_heliocentric(zh, &gal).value(),
+        f.galactic_rest.from_heliocentric(zh, &gal).value(),
+        f.local_group.from_heliocentric(zh, &gal).value(),
+        result.z_cmb,
+    ];
+    let [x, y, z] = gal.xyz();
+    let chain = f
+        .chain()
+        .into_iter()
+        .zip(after)
+        .map(|(step, z_after)| {
+            let [vx, vy, vz] = step.velocity_km_s;
+            let cos_theta = if step.speed_km_s > 0.0 {
+                (vx * x + vy * y + vz * z) / step.speed_km_s
+            } else {
+                0.0
+            };
+            ChainRedshift {
+                step,
+                z: z_after,
+                cos_theta,
+            }
+        })
+        .collect();
     Ok(GalaxyReport {
         result,
-        z_lg: shared
-            .frames
-            .local_group
-            .from_heliocentric(zh, &gal)
-            .value(),
-        z_gsr: shared
-            .frames
-            .galactic_rest
-            .from_heliocentric(zh, &gal)
-            .value(),
-        z_lsr: shared.frames.lsr.from_heliocentric(zh, &gal).value(),
+        chain,
         cautions: shared.cautions(),
     })
 }

@@ -68,6 +68,25 @@ pub fn cautions(
             other => format!("Luminosity-distance convention: {} (see README, 'Conventions'); the complete convention (full) would give |v_pec| larger by a fraction ≈ z.", other.name()),
         },
     ];
+    for a in &frames.chain_apices()[..3] {
+        if a.name != crate::physics::restframe::default_apex(a.frame).name {
+            out.push(format!(
+                "The {} frame uses the '{}' apex ({:.2} km/s towards l = {}°, b = {}°{}), not the built-in default.",
+                a.frame,
+                a.name,
+                a.speed_km_s,
+                a.glon_deg,
+                a.glat_deg,
+                a.file.as_ref().map(|f| format!("; apex file {f}")).unwrap_or_default()
+            ));
+        }
+    }
+    if let Some(f) = &frames.cmb_apex.file {
+        out.push(format!(
+            "The CMB apex '{}' comes from the apex file {f}.",
+            frames.cmb_apex.name
+        ));
+    }
     if frames.method == BoostMethod::LegacyAdditive {
         out.push("Legacy additive frame correction (cz + v cos θ) in use: it omits the (1 + z) factor, an error ≈ v z.".into());
     }

@@ -16,6 +16,15 @@ pub enum SettingsError {
     UnknownName(String),
     #[error("give either a named dipole or a user apex, not both")]
     DipoleAndUserApex,
+    /// A bad entry of an apex file (or of a run file's `frame.apices`): the file, the entry
+    /// and the key.
+    #[error("{origin}: {entry}: key '{key}': {problem}")]
+    ApexEntry {
+        origin: String,
+        entry: String,
+        key: String,
+        problem: String,
+    },
     #[error("user apex: {0}")]
     UserApex(PhysicsError),
     /// `--infall NAME,X,Y,Z,DELTA0,R_SCALE` as given, and what is wrong with it.

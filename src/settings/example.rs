@@ -36,6 +36,9 @@ pub const EXAMPLE_CONFIG: &str = r#"# flowsift run file. Every key is optional; 
 # boost = "exact"            # or "legacy-additive" (cz + v cos(theta))
 # local_group = "courteau-vandenbergh1999"
 # galactic_rest = "schoenrich2010-eilers2019"
+# lsr = "schoenrich2010"
+# apex_file = "apices.toml"  # your own apices ([[apex]] tables), beside this file;
+#                            # choose them by name above (see demo-data/apices.example.toml)
 
 [conventions]
 # dl_convention = "full"     # or "observed", "cosmological"

@@ -2,6 +2,7 @@
 //! `overlay` (flags over file) and, for cosmology and frames, the resolution into validated
 //! physics objects. Nothing here reads files; `plan` resolves these against the inputs.
 
+mod apex_file;
 mod columns;
 mod conventions;
 mod cosmology;
@@ -21,10 +22,11 @@ pub use crate::physics::cosmology::LengthUnit;
 pub use crate::physics::cosmology::PRESETS;
 pub use crate::physics::estimators::{DistanceKind, DlConvention};
 pub use crate::physics::field::{DensityBoundary, FieldAxes};
-pub use crate::physics::restframe::apex_table;
 pub use crate::physics::restframe::BoostMethod;
 pub use crate::physics::restframe::GivenFrame;
+pub use crate::physics::restframe::{apex_table, chain_sum, cmb_dipoles, Apex, ChainStep};
 pub use crate::physics::sky::InputSkyFrame;
+pub use apex_file::{parse_apex_file, ApexEntry};
 pub use columns::{AngleUnit, ColumnChoice, RedshiftUnit};
 pub use conventions::{cautions, ConventionChoice};
 pub use cosmology::{CosmologyChoice, ResolvedCosmology};

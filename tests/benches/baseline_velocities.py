@@ -10,7 +10,7 @@ It is not a test and cargo never runs it: speed_ratio.sh makes its own virtual e
         1. heliocentric -> CMB frame with the exact boost
            1 + z_cmb = (1 + z_helio) / [gamma (1 - beta cos theta)],
            theta the angle between the source and the CMB dipole apex (astropy SkyCoord);
-           the apex is the one of src/physics/restframe.rs, default_apex("cmb"): Planck 2018
+           the apex is the one of src/physics/restframe/apex.rs, default_apex("cmb"): Planck 2018
            (Planck Collaboration I 2020, A&A 641, A1, Table 2), 369.82 km/s towards
            l = 264.021 deg, b = 48.253 deg;
         2. z_cos from mu by inverting D_L(z) = (1 + z) D_M(z) of astropy's
@@ -41,7 +41,7 @@ import sys
 
 import numpy as np
 
-APEX_SPEED_KM_S = 369.82  # src/physics/restframe.rs, default_apex("cmb"): Planck 2018
+APEX_SPEED_KM_S = 369.82  # src/physics/restframe/apex.rs, default_apex("cmb"): Planck 2018
 APEX_L_DEG = 264.021
 APEX_B_DEG = 48.253
 H0 = 70.0  # flowsift's default cosmology ("common" preset): flat LCDM, H0 = 70, Om0 = 0.3
