@@ -278,7 +278,7 @@ impl Figure {
     pub(crate) fn describe(self) -> &'static str {
         match self {
             Figure::Hubble => "Hubble diagram: distance indicator against CMB-frame redshift, the model curve, and the residuals from it.",
-            Figure::VelocityDistance => "Peculiar velocity and η against redshift distance D_C(z_cmb), with error-weighted means in bins.",
+            Figure::VelocityDistance => "Peculiar velocity against redshift distance D_C(z_cmb), with error-weighted means in bins (the η means are in the data table).",
             Figure::VelocityInferred => "Peculiar velocity against the distance inferred from the distance indicator: biased by construction (objects scattered far get negative velocities).",
             Figure::Sky(SkyChoice::Galactic) => "Peculiar velocities of single objects on the sky, Galactic coordinates (Mollweide equal-area projection).",
             Figure::Sky(SkyChoice::Supergalactic) => "Peculiar velocities of single objects on the sky, supergalactic coordinates (Mollweide equal-area projection).",

@@ -198,14 +198,14 @@ pub(super) fn flow_map<DB: DrawingBackend>(
     let describe = |s: &Shell| {
         if s.index == 0 {
             format!(
-                "all depths, D_C(z_cmb) {}–{} Mpc, {} objects",
+                "all depths, D_{{C}}(z_{{cmb}}) {}–{} Mpc, {} objects",
                 fixed(s.lo, 0),
                 fixed(s.hi, 0),
                 s.n
             )
         } else {
             format!(
-                "shell {}: D_C(z_cmb) {}–{} Mpc, {} objects",
+                "shell {}: D_{{C}}(z_{{cmb}}) {}–{} Mpc, {} objects",
                 s.index,
                 fixed(s.lo, 0),
                 fixed(s.hi, 0),
@@ -274,12 +274,13 @@ pub(super) fn flow_map<DB: DrawingBackend>(
         let cx = cell_w * (col as f64 + 0.5);
         let cy = cell_h * row as f64 + head + HALF_HEIGHT * k + 4.0 * sc.0;
         let px = |x: f64, y: f64| ((cx + x * k).round() as i32, (cy - y * k).round() as i32);
-        text(
+        super::typeset::draw(
             &body,
             &describe(shell),
             (cx.round() as i32, (cell_h * row as f64 + head * 0.5) as i32),
             &title_font,
-            (HPos::Center, VPos::Center),
+            HPos::Center,
+            false,
         )?;
         let outline: Vec<(i32, i32)> = (0..=180)
             .map(|i| {
