@@ -229,10 +229,13 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
     };
     let table = read_table(&figure_source, &ReadOptions::default())?;
     let bulkflow = summary.bulk_flow.as_ref().map(|(b, _)| b.clone());
+    // The run's cosmology and column mapping from its record; both velocity figures, so that
+    // the bias of plotting against the inferred distance shows beside the redshift distance.
     let options = flowsift::report::PlotOptions {
         bulkflow: bulkflow.clone(),
         label: Some(spec.name.clone()),
-        ..Default::default()
+        inferred_distance: true,
+        ..flowsift::report::PlotOptions::for_run(&figure_source, None)
     };
     let figures_dir = a.out_dir.join("figures");
     let figures =

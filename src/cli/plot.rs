@@ -8,11 +8,15 @@ use clap::{Args, ValueEnum};
 use flowsift::catalogue::bulk_flow_file::read_bulk_flow;
 use flowsift::catalogue::{read_table, ReadOptions};
 use flowsift::plan::{plan_stage, StageOrder};
-use flowsift::report::{render_all, write_report, ImageFormat, PlotOptions, SkyChoice};
+use flowsift::report::{
+    render_all, run_figure_settings, write_report, ImageFormat, PaperColumn, PlotOptions,
+    SkyChoice, Style,
+};
 use flowsift::settings::{InputChoice, RunConfig};
 
-/// Figures (Hubble diagram, v_pec against distance, sky map, normalised velocities) and
-/// DIR/report.html from a flowsift output. Only rows with status ok are drawn.
+/// Figures (Hubble diagram, v_pec against redshift distance, flow map, sky map, bulk flow,
+/// normalised velocities), the numbers of each as NAME.data.csv, and DIR/report.html from a
+/// flowsift output. Only rows with status ok are drawn.
 #[derive(Debug, Args)]
 pub struct PlotArgs {
     /// A flowsift output (FITS, CSV/TSV or Parquet, from `velocities`, `outliers`, …).
@@ -24,9 +28,21 @@ pub struct PlotArgs {
     /// Coordinates of the sky map.
     #[arg(long, value_enum, default_value_t = SkyArg::Galactic)]
     pub sky: SkyArg,
-    /// Image files to write for each figure.
-    #[arg(long, value_enum, default_value_t = FormatArg::Both)]
-    pub format: FormatArg,
+    /// Image files to write for each figure (default: png and svg; with --style paper, pdf, svg
+    /// and png).
+    #[arg(long, value_enum)]
+    pub format: Option<FormatArg>,
+    /// screen: title and caption in the image; paper: journal column width, no title or
+    /// caption in the image (the caption goes to NAME.caption.txt and the report).
+    #[arg(long, value_enum, default_value_t = StyleArg::Screen)]
+    pub style: StyleArg,
+    /// Paper style: column width of every figure (default: sky maps double, the rest single).
+    #[arg(long, value_enum)]
+    pub column: Option<ColumnArg>,
+    /// Also draw v_pec against the distance inferred from the distance indicator (biased by
+    /// construction; labelled so).
+    #[arg(long = "inferred-distance")]
+    pub inferred_distance: bool,
     /// Bulk-flow result to mark on the sky map and summarise in the report (default:
     /// INPUT.bulkflow.json when that file exists).
     #[arg(long, value_name = "JSON")]
@@ -50,7 +66,23 @@ pub enum SkyArg {
 pub enum FormatArg {
     Png,
     Svg,
+    Pdf,
+    /// png and svg.
     Both,
+    /// pdf, svg and png.
+    All,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum StyleArg {
+    Screen,
+    Paper,
+}
+
+#[derive(Debug, Clone, Copy, PartialEq, Eq, ValueEnum)]
+pub enum ColumnArg {
+    Single,
+    Double,
 }
 
 fn default_bulkflow(input: &Path) -> PathBuf {
@@ -91,18 +123,43 @@ pub fn run(a: PlotArgs) -> anyhow::Result<()> {
     .map_err(|e| anyhow!(e))?;
     let table = read_table(&a.input, &ReadOptions { hdu: a.hdu.clone() })?;
     let bulkflow = bulk_path.as_deref().map(read_bulk_flow).transpose()?;
+    let run = run_figure_settings(&a.input, a.hdu.as_deref());
+    let cosmology_given = a.common.cosmology.choice() != Default::default();
+    let cosmology_source = if cosmology_given {
+        "given on the command line".to_string()
+    } else if run.cosmology.is_some() {
+        "the run's, from its record".to_string()
+    } else {
+        PlotOptions::default().cosmology_source
+    };
+    let style = match a.style {
+        StyleArg::Screen => Style::Screen,
+        StyleArg::Paper => Style::Paper,
+    };
     let options = PlotOptions {
         sky: match a.sky {
             SkyArg::Galactic => SkyChoice::Galactic,
             SkyArg::Supergalactic => SkyChoice::Supergalactic,
         },
-        format: match a.format {
-            FormatArg::Png => ImageFormat::Png,
-            FormatArg::Svg => ImageFormat::Svg,
-            FormatArg::Both => ImageFormat::Both,
+        format: match (a.format, style) {
+            (Some(FormatArg::Png), _) => ImageFormat::Png,
+            (Some(FormatArg::Svg), _) => ImageFormat::Svg,
+            (Some(FormatArg::Pdf), _) => ImageFormat::Pdf,
+            (Some(FormatArg::Both), _) => ImageFormat::Both,
+            (Some(FormatArg::All), _) | (None, Style::Paper) => ImageFormat::All,
+            (None, Style::Screen) => ImageFormat::Both,
         },
         bulkflow: bulkflow.clone(),
+        // The plan takes the cosmology recorded with the input unless flags give another.
         cosmology: plan.shared.cosmology.params,
+        cosmology_source,
+        mu_column: run.mu_column.clone(),
+        inferred_distance: a.inferred_distance,
+        style,
+        column: a.column.map(|c| match c {
+            ColumnArg::Single => PaperColumn::Single,
+            ColumnArg::Double => PaperColumn::Double,
+        }),
         label: a.input.file_name().map(|n| n.to_string_lossy().to_string()),
         ..PlotOptions::default()
     };

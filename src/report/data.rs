@@ -7,6 +7,8 @@ use polars::prelude::{Column, DataType};
 use super::ReportError;
 use super::SkyChoice;
 use crate::catalogue::Table;
+use crate::physics::cosmology::Cosmology;
+use crate::physics::dipole_likelihood::eta_per_velocity;
 use crate::physics::sky::{galactic_to_supergalactic, Direction, Galactic, Supergalactic};
 
 /// One row with status ok; missing numbers are NaN.
@@ -23,6 +25,16 @@ pub(crate) struct Row {
     pub mu_err: f64,
     pub truth: f64,
     pub outlier: bool,
+    pub eta: f64,
+    pub eta_err: f64,
+    /// Galactic position, degrees (for flow fits, which are made in Galactic axes).
+    pub glon: f64,
+    pub glat: f64,
+    /// Redshift distance D_C(z_cmb) in the model cosmology, Mpc (filled by
+    /// [`Sample::fill_depths`]).
+    pub depth: f64,
+    /// κ = ∂η/∂v at z_cmb, s/km (filled by [`Sample::fill_depths`]).
+    pub kappa: f64,
 }
 
 /// The rows with status ok and the counts of the rest.
@@ -35,6 +47,8 @@ pub(crate) struct Sample {
     pub not_ok: usize,
     pub has_mu: bool,
     pub has_truth: bool,
+    /// The column read as μ (`mu`, or the one the run's record maps to the distance modulus).
+    pub mu_column: String,
 }
 
 /// Numbers of a column as f64 (NaN where null or not numeric); `None` if there is no such
@@ -119,7 +133,13 @@ pub(crate) fn is_ok(status: Option<&str>) -> bool {
 }
 
 impl Sample {
-    pub(crate) fn from_table(table: &Table, sky: SkyChoice) -> Result<Sample, ReportError> {
+    /// The rows with status ok; μ from `mu`, else from `mu_column` (name, error column) when
+    /// given (the distance-modulus column the run's record names).
+    pub(crate) fn from_table(
+        table: &Table,
+        sky: SkyChoice,
+        mu_column: Option<&(String, Option<String>)>,
+    ) -> Result<Sample, ReportError> {
         let n = table.frame.height();
         let z = required(table, "z_cmb")?;
         let v = required(table, "v_pec")?;
@@ -128,8 +148,23 @@ impl Sample {
         let status = texts(table, "status")?.ok_or_else(|| ReportError::MissingColumn {
             name: "status".into(),
         })?;
-        let mu = numbers(table, "mu")?;
-        let mu_err = numbers(table, "mu_err")?;
+        let (mu_name, mu, mu_err) = match numbers(table, "mu")? {
+            Some(m) => ("mu".to_string(), Some(m), numbers(table, "mu_err")?),
+            None => match mu_column {
+                Some((name, err)) => {
+                    let err_name = err.clone().unwrap_or_else(|| format!("{name}_err"));
+                    (
+                        name.clone(),
+                        numbers(table, name)?,
+                        numbers(table, &err_name)?,
+                    )
+                }
+                None => ("mu".to_string(), None, None),
+            },
+        };
+        let eta = numbers(table, "eta")?;
+        let eta_err = numbers(table, "eta_err")?;
+        let (glon, glat) = sky_columns(table, SkyChoice::Galactic, n)?;
         let truth = numbers(table, "true_v_pec")?;
         let outlier = flags(table, "outlier")?;
         let (lon, lat) = sky_columns(table, sky, n)?;
@@ -150,6 +185,12 @@ impl Sample {
                 mu_err: nan(&mu_err, i),
                 truth: nan(&truth, i),
                 outlier: outlier.as_ref().is_some_and(|o| o[i]),
+                eta: nan(&eta, i),
+                eta_err: nan(&eta_err, i),
+                glon: glon[i],
+                glat: glat[i],
+                depth: f64::NAN,
+                kappa: f64::NAN,
             });
         }
         Ok(Sample {
@@ -158,7 +199,18 @@ impl Sample {
             rows,
             has_mu: mu.is_some(),
             has_truth: truth.is_some(),
+            mu_column: mu_name,
         })
+    }
+
+    /// Redshift distance D_C(z_cmb) and κ = ∂η/∂v of every row in `cosmology`.
+    pub(crate) fn fill_depths(&mut self, cosmology: &Cosmology) {
+        for r in &mut self.rows {
+            if r.z.is_finite() && r.z > -1.0 {
+                r.depth = cosmology.comoving_distance(r.z).unwrap_or(f64::NAN);
+                r.kappa = eta_per_velocity(cosmology, r.z).unwrap_or(f64::NAN);
+            }
+        }
     }
 }
 

@@ -599,10 +599,13 @@ fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<()
     // Group the files by stem, keeping the order in which stems first appear.
     let mut groups: Vec<(String, Vec<&PathBuf>)> = Vec::new();
     for f in figures {
+        // The figure's name: the file name up to its first dot (NAME.png, NAME.data.csv,
+        // NAME.caption.txt).
         let stem = f
-            .file_stem()
+            .file_name()
             .map(|s| s.to_string_lossy().to_string())
             .unwrap_or_default();
+        let stem = stem.split('.').next().unwrap_or_default().to_string();
         match groups.iter_mut().find(|g| g.0 == stem) {
             Some(g) => g.1.push(f),
             None => groups.push((stem, vec![f])),
@@ -638,7 +641,23 @@ fn figures_section(h: &mut String, figures: &[PathBuf], out: &Path) -> Result<()
         } else {
             h.push_str("<p class=\"note\">(not an image that can be embedded)</p>");
         }
-        let _ = write!(h, "<figcaption>{} Files:", esc(description));
+        let caption = files
+            .iter()
+            .find(|p| p.to_string_lossy().ends_with(".caption.txt"))
+            .and_then(|p| std::fs::read_to_string(p).ok());
+        match caption {
+            Some(c) => {
+                let _ = write!(
+                    h,
+                    "<figcaption>{} {} Files:",
+                    esc(description),
+                    esc(c.trim())
+                );
+            }
+            None => {
+                let _ = write!(h, "<figcaption>{} Files:", esc(description));
+            }
+        }
         for f in &files {
             let name = f
                 .file_name()

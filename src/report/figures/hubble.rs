@@ -6,14 +6,28 @@ use plotters::prelude::*;
 
 use crate::physics::redshift::doppler_redshift;
 use crate::report::colour::{ACCENT, INK};
+
 use crate::report::data::Row;
 
 use crate::report::ReportError;
 
 use super::axis::{clip_curve, number, Axis};
-use super::layout::{chart, frame, legend, scatter, Scale};
-use super::stats::{quantile, running_medians, sorted};
+use super::layout::{chart, frame, free_corner, legend, scatter, Scale};
+use super::stats::{quantile, sorted};
 use super::{de, model_label, rows_line, Area, Context};
+
+/// Columns of `hubble_diagram.data.csv`: rows `model` (the model curve: z, model value) and
+/// `binned_residual` (error-weighted mean residual in bins of ln z: z at the mean, residual,
+/// error, z at the bin's lower edge, objects).
+pub(crate) const COLUMNS: [&str; 7] = [
+    "kind",
+    "z_cmb",
+    "model",
+    "residual",
+    "residual_err",
+    "z_lo",
+    "n",
+];
 
 /// The peculiar velocity whose residual curves the Hubble diagram shows, km/s.
 const GUIDE_VELOCITY: f64 = 500.0;
@@ -106,9 +120,52 @@ pub(super) fn hubble<DB: DrawingBackend>(
         model_label(ctx),
         number(GUIDE_VELOCITY)
     ));
-    if !use_mu {
-        caption.push("The table has no μ column: comoving distances D_C implied by the distance indicator are shown instead.".into());
+    if use_mu && sample.mu_column != "mu" {
+        caption.push(format!(
+            "μ read from the column {} (the distance modulus in the run's recorded column mapping).",
+            sample.mu_column
+        ));
     }
+    if !use_mu {
+        caption.push("The table has no distance-modulus column (neither mu nor one the run's record maps to μ): comoving distances D_C implied by the distance indicator are shown instead.".into());
+    }
+    caption.push(format!(
+        "Model cosmology: {}.",
+        ctx.options.cosmology_source
+    ));
+    // The numbers plotted: the model curve and the binned residuals.
+    let mut table = crate::report::tables::DataTable::new(&COLUMNS);
+    for &(z, m) in &curve {
+        table.push(vec![
+            "model".into(),
+            z.into(),
+            m.into(),
+            f64::NAN.into(),
+            f64::NAN.into(),
+            f64::NAN.into(),
+            0usize.into(),
+        ]);
+    }
+    let zs_core: Vec<f64> = points.iter().filter(|p| !p.3).map(|p| p.0.ln()).collect();
+    let edges = crate::report::binned::equal_count_edges(&zs_core, 10, 20);
+    let resid_pts: Vec<(f64, f64, f64)> = points
+        .iter()
+        .filter(|p| !p.3)
+        .map(|p| (p.0.ln(), p.4, if use_mu && p.2 > 0.0 { p.2 } else { 1.0 }))
+        .collect();
+    let resid_bins = crate::report::binned::weighted_bins(&resid_pts, &edges);
+    for b in &resid_bins {
+        table.push(vec![
+            "binned_residual".into(),
+            b.x_mean.exp().into(),
+            f64::NAN.into(),
+            b.mean.into(),
+            b.err.into(),
+            b.x_lo.exp().into(),
+            b.n.into(),
+        ]);
+    }
+    ctx.set_table(table);
     let title = if use_mu {
         "Hubble diagram: distance modulus against CMB-frame redshift"
     } else {
@@ -121,7 +178,7 @@ pub(super) fn hubble<DB: DrawingBackend>(
     let y_desc = if use_mu {
         "distance modulus μ (mag)"
     } else {
-        "comoving distance D_C (Mpc)"
+        "comoving distance D_{C} (Mpc)"
     };
     let mut top = chart(&upper, sc, x, y, None, y_desc)?;
     let pts: Vec<(f64, f64, f64, bool)> = points.iter().map(|p| (p.0, p.1, p.2, p.3)).collect();
@@ -143,19 +200,30 @@ pub(super) fn hubble<DB: DrawingBackend>(
             INK.stroke_width(sc.upx(3.0)),
         )
     });
-    legend(&mut top, sc, SeriesLabelPosition::UpperLeft)?;
+    let occupied: Vec<(f64, f64)> = pts
+        .iter()
+        .map(|p| (p.0, p.1))
+        .chain(curve.iter().copied())
+        .collect();
+    let labels = vec![
+        label.to_string(),
+        format!("outliers ({n_out}), open markers"),
+        format!("model: {}", model_label(ctx)),
+    ];
+    let pos = free_corner(&top, sc, &labels, &occupied);
+    legend(&mut top, sc, pos)?;
 
     let r_desc = if use_mu {
-        "μ − μ_model (mag)"
+        "μ − μ_{model} (mag)"
     } else {
-        "D_C / D_C,model − 1"
+        "D_{C} / D_{C,model} − 1"
     };
     let mut bottom = chart(
         &lower,
         sc,
         x,
         yr,
-        Some("CMB-frame redshift z_cmb (log scale)"),
+        Some("CMB-frame redshift z_{cmb} (log scale)"),
         r_desc,
     )?;
     bottom
@@ -167,6 +235,7 @@ pub(super) fn hubble<DB: DrawingBackend>(
     let rpts: Vec<(f64, f64, f64, bool)> = points.iter().map(|p| (p.0, p.4, p.2, p.3)).collect();
     scatter(&mut bottom, sc, &rpts, x, yr, None)?;
     // Guide curves: the residual a peculiar velocity of ±GUIDE_VELOCITY gives.
+    let mut guides: Vec<(f64, f64)> = Vec::new();
     for v in [GUIDE_VELOCITY, -GUIDE_VELOCITY] {
         let Ok(zp) = doppler_redshift(v) else {
             continue;
@@ -191,6 +260,7 @@ pub(super) fn hubble<DB: DrawingBackend>(
                 (z, r)
             })
             .collect();
+        guides.extend(g.iter().copied().filter(|p| yr.contains(p.1)));
         for piece in clip_curve(&g, &yr) {
             bottom
                 .draw_series(std::iter::once(DashedPathElement::new(
@@ -208,30 +278,37 @@ pub(super) fn hubble<DB: DrawingBackend>(
         .map_err(de)?
         .label(format!("v_pec = ±{} km/s", number(GUIDE_VELOCITY)))
         .legend(move |(a, b)| DashedPathElement::new(vec![(a - 14, b), (a + 14, b)], 6, 4, guide));
-    // Running median of the residuals.
-    let mut rm: Vec<(f64, [f64; 2])> = points
-        .iter()
-        .filter(|p| !p.3)
-        .map(|p| (p.0.ln(), [p.4, 0.0]))
-        .collect();
-    let w = (rm.len() / 25).clamp(5, 120);
-    let med = running_medians(&mut rm, w, (w / 5).max(1));
-    if med.len() > 1 {
-        let line: Vec<(f64, f64)> = med.iter().map(|m| (m.0.exp(), yr.clamp(m.1[0]))).collect();
+    // Error-weighted mean residuals in bins of ln z.
+    let r = sc.px(7.0);
+    let bar = ACCENT.stroke_width(sc.upx(3.0));
+    bottom
+        .draw_series(resid_bins.iter().map(|b| {
+            PathElement::new(
+                vec![
+                    (b.x_mean.exp(), yr.clamp(b.mean - b.err)),
+                    (b.x_mean.exp(), yr.clamp(b.mean + b.err)),
+                ],
+                bar,
+            )
+        }))
+        .map_err(de)?;
+    let mut labels = vec![format!("v_pec = ±{} km/s", number(GUIDE_VELOCITY))];
+    if !resid_bins.is_empty() {
         bottom
-            .draw_series(std::iter::once(PathElement::new(
-                line,
-                ACCENT.stroke_width(sc.upx(4.0)),
-            )))
+            .draw_series(resid_bins.iter().map(|b| {
+                EmptyElement::at((b.x_mean.exp(), yr.clamp(b.mean)))
+                    + Rectangle::new([(-r, -r), (r, r)], ACCENT.filled())
+            }))
             .map_err(de)?
-            .label(format!("running median ({w} rows)"))
+            .label("binned mean residual ± error")
             .legend(move |(a, b)| {
-                PathElement::new(
-                    vec![(a - 12, b), (a + 12, b)],
-                    ACCENT.stroke_width(sc.upx(4.0)),
-                )
+                Rectangle::new([(a - r, b - r), (a + r, b + r)], ACCENT.filled())
             });
+        labels.push("binned mean residual ± error".into());
     }
-    legend(&mut bottom, sc, SeriesLabelPosition::LowerLeft)?;
+    let mut occupied: Vec<(f64, f64)> = rpts.iter().map(|p| (p.0, p.1)).collect();
+    occupied.extend(guides.iter().copied());
+    let pos = free_corner(&bottom, sc, &labels, &occupied);
+    legend(&mut bottom, sc, pos)?;
     Ok(())
 }

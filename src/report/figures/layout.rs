@@ -20,7 +20,7 @@ pub(super) struct Scale(pub(super) f64);
 
 impl Scale {
     pub(super) fn of(ctx: &Context<'_>) -> Scale {
-        Scale(ctx.options.height as f64 / 1000.0)
+        Scale(ctx.canvas.scale)
     }
     pub(super) fn px(self, v: f64) -> i32 {
         (v * self.0).round() as i32
@@ -115,6 +115,16 @@ pub(super) fn frame<DB: DrawingBackend>(
     caption: &[String],
 ) -> Result<Area<DB>, ReportError> {
     let sc = Scale::of(ctx);
+    {
+        let mut r = ctx.record.borrow_mut();
+        r.title = title.to_string();
+        r.caption = caption.to_vec();
+    }
+    if ctx.paper() {
+        // Paper style: no title or caption in the image (they go to NAME.caption.txt).
+        let m = sc.upx(6.0);
+        return Ok(root.margin(m, m, m, m));
+    }
     let (w, h) = root.dim_in_pixel();
     let title_h = sc.px(66.0);
     let caption_font = sc.font(20.0);
@@ -155,7 +165,8 @@ pub(super) fn frame<DB: DrawingBackend>(
 }
 
 /// A chart with our mesh and labels. `x_desc` None: tick marks without labels (an upper panel
-/// sharing its x axis with the one below).
+/// sharing its x axis with the one below). The axis titles are typeset markup
+/// ([`super::typeset`]).
 pub(super) fn chart<'a, DB: DrawingBackend>(
     area: &'a Area<DB>,
     sc: Scale,
@@ -164,35 +175,30 @@ pub(super) fn chart<'a, DB: DrawingBackend>(
     x_desc: Option<&str>,
     y_desc: &str,
 ) -> Result<Chart<'a, DB>, ReportError> {
+    let x_area = if x_desc.is_some() {
+        sc.upx(72.0)
+    } else {
+        sc.upx(10.0)
+    };
+    let y_area = sc.upx(128.0);
     let mut chart = ChartBuilder::on(area)
         .margin_top(sc.upx(12.0))
         .margin_right(sc.upx(40.0))
         .margin_left(sc.upx(16.0))
-        .x_label_area_size(if x_desc.is_some() {
-            sc.upx(72.0)
-        } else {
-            sc.upx(10.0)
-        })
-        .y_label_area_size(sc.upx(128.0))
+        .x_label_area_size(x_area)
+        .y_label_area_size(y_area)
         .build_cartesian_2d(x, y)
         .map_err(de)?;
     let blank = |_: &f64| String::new();
     let mut mesh = chart.configure_mesh();
-    mesh.axis_desc_style(sc.font(27.0))
-        .label_style(sc.font(23.0))
+    mesh.label_style(sc.font(23.0))
         .x_labels(9)
         .y_labels(7)
         .bold_line_style(GRID.mix(0.55))
         .light_line_style(TRANSPARENT)
-        .axis_style(INK.stroke_width(sc.upx(1.6)))
-        .y_desc(y_desc);
-    match x_desc {
-        Some(d) => {
-            mesh.x_desc(d);
-        }
-        None => {
-            mesh.x_label_formatter(&blank);
-        }
+        .axis_style(INK.stroke_width(sc.upx(1.6)));
+    if x_desc.is_none() {
+        mesh.x_label_formatter(&blank);
     }
     mesh.draw().map_err(de)?;
     // Close the frame on top and right.
@@ -202,7 +208,93 @@ pub(super) fn chart<'a, DB: DrawingBackend>(
             INK.mix(0.5).stroke_width(sc.upx(1.2)),
         )))
         .map_err(de)?;
+    // Axis titles, typeset.
+    let (xr, yr) = chart.plotting_area().get_pixel_range();
+    let (bx, by) = area.get_base_pixel();
+    let style = sc.font(27.0);
+    if let Some(d) = x_desc {
+        super::typeset::draw(
+            area,
+            d,
+            (
+                (xr.start + xr.end) / 2 - bx,
+                yr.end - by + (x_area as f64 * 0.7) as i32,
+            ),
+            &style,
+            HPos::Center,
+            false,
+        )?;
+    }
+    super::typeset::draw(
+        area,
+        y_desc,
+        (
+            xr.start - bx - (y_area as f64 * 0.78) as i32,
+            (yr.start + yr.end) / 2 - by,
+        ),
+        &style,
+        HPos::Center,
+        true,
+    )?;
     Ok(chart)
+}
+
+/// Where a legend of `labels` covers the fewest of the `occupied` points (data coordinates):
+/// one of the four corners or the middle of the top or bottom edge, the upper left on a tie.
+pub(super) fn free_corner<DB: DrawingBackend>(
+    chart: &Chart<'_, DB>,
+    sc: Scale,
+    labels: &[String],
+    occupied: &[(f64, f64)],
+) -> SeriesLabelPosition {
+    let area = chart.plotting_area();
+    let (xr, yr) = area.get_pixel_range();
+    let font = sc.font(21.0);
+    let text_w = labels
+        .iter()
+        .map(|l| {
+            area.estimate_text_size(l, &font)
+                .map(|(w, _)| w as i32)
+                .unwrap_or(0)
+        })
+        .max()
+        .unwrap_or(0);
+    let w = text_w + sc.px(38.0 + 40.0);
+    let h = sc.px(38.0) * labels.len() as i32 + sc.px(20.0);
+    let m = sc.px(14.0);
+    let cx = (xr.start + xr.end) / 2;
+    let boxes = [
+        (SeriesLabelPosition::UpperLeft, xr.start + m, yr.start + m),
+        (
+            SeriesLabelPosition::UpperRight,
+            xr.end - m - w,
+            yr.start + m,
+        ),
+        (SeriesLabelPosition::LowerLeft, xr.start + m, yr.end - m - h),
+        (
+            SeriesLabelPosition::LowerRight,
+            xr.end - m - w,
+            yr.end - m - h,
+        ),
+        (SeriesLabelPosition::UpperMiddle, cx - w / 2, yr.start + m),
+        (SeriesLabelPosition::LowerMiddle, cx - w / 2, yr.end - m - h),
+    ];
+    let pixels: Vec<(i32, i32)> = occupied
+        .iter()
+        .filter(|p| p.0.is_finite() && p.1.is_finite())
+        .map(|p| chart.backend_coord(p))
+        .collect();
+    let mut best = (usize::MAX, SeriesLabelPosition::UpperLeft);
+    for (pos, x0, y0) in boxes {
+        let n = pixels
+            .iter()
+            .filter(|p| p.0 >= x0 && p.0 <= x0 + w && p.1 >= y0 && p.1 <= y0 + h)
+            .count();
+        if n < best.0 {
+            best = (n, pos);
+        }
+    }
+    best.1
 }
 
 pub(super) fn legend<'a, DB: DrawingBackend + 'a>(

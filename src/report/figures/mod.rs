@@ -13,20 +13,28 @@ use plotters::prelude::*;
 
 use crate::physics::cosmology::Cosmology;
 use crate::report::data::Sample;
-use crate::report::{Figure, PlotOptions, ReportError};
+use std::cell::RefCell;
+
+use crate::report::tables::DataTable;
+use crate::report::{Canvas, Figure, PlotOptions, ReportError, Style};
 
 use axis::Axis;
+use bulk_flow::bulk_flow;
+use flow_map::flow_map;
 use hubble::hubble;
 use pulls::pulls;
 use sky_map::sky_map;
 use velocity_distance::velocity_distance;
 
 mod axis;
+mod bulk_flow;
+mod flow_map;
 mod hubble;
 mod layout;
 mod pulls;
 mod sky_map;
 mod stats;
+mod typeset;
 mod velocity_distance;
 
 pub(crate) use axis::number;
@@ -36,6 +44,28 @@ pub(crate) struct Context<'a> {
     pub sample: &'a Sample,
     pub cosmology: &'a Cosmology,
     pub options: &'a PlotOptions,
+    /// Size and scale of the file being drawn.
+    pub canvas: Canvas,
+    /// What the drawing noted for the files beside the image (its caption, its numbers).
+    pub record: &'a RefCell<FigureRecord>,
+}
+
+/// Title, caption and data table of a figure, as the drawing made them.
+#[derive(Debug, Clone, Default)]
+pub(crate) struct FigureRecord {
+    pub title: String,
+    pub caption: Vec<String>,
+    pub table: Option<DataTable>,
+}
+
+impl Context<'_> {
+    pub(crate) fn set_table(&self, table: DataTable) {
+        self.record.borrow_mut().table = Some(table);
+    }
+
+    pub(crate) fn paper(&self) -> bool {
+        self.options.style == Style::Paper
+    }
 }
 
 type Area<DB> = DrawingArea<DB, Shift>;
@@ -51,23 +81,34 @@ pub(crate) fn write_figure(
     ctx: &Context<'_>,
     path: &Path,
 ) -> Result<(), ReportError> {
-    let size = (ctx.options.width, ctx.options.height);
+    let size = (ctx.canvas.width, ctx.canvas.height);
     let ext = path
         .extension()
         .map(|e| e.to_string_lossy().to_ascii_lowercase())
         .unwrap_or_default();
+    let svg = |ctx: &Context<'_>| -> Result<String, ReportError> {
+        let mut text = String::new();
+        {
+            let root = SVGBackend::with_string(&mut text, size).into_drawing_area();
+            draw(figure, ctx, &root)?;
+            root.present().map_err(de)?;
+        }
+        Ok(text)
+    };
     match ext.as_str() {
         "svg" => {
-            let mut text = String::new();
-            {
-                let root = SVGBackend::with_string(&mut text, size).into_drawing_area();
-                draw(figure, ctx, &root)?;
-                root.present().map_err(de)?;
+            let mut text = svg(ctx)?;
+            if ctx.paper() {
+                text = in_points(&text, size);
             }
             Ok(crate::catalogue::atomic::write_bytes(
                 path,
                 text.as_bytes(),
             )?)
+        }
+        "pdf" => {
+            let pdf = crate::report::pdf::svg_to_pdf(&svg(ctx)?)?;
+            Ok(crate::catalogue::atomic::write_bytes(path, &pdf)?)
         }
         // The PNG encoder writes its file by name: the one atomic writer gives it a fresh
         // temporary path with the destination's extension.
@@ -88,9 +129,23 @@ fn draw<DB: DrawingBackend>(
     root.fill(&WHITE).map_err(de)?;
     match figure {
         Figure::Hubble => hubble(ctx, root),
-        Figure::VelocityDistance => velocity_distance(ctx, root),
+        Figure::VelocityDistance => velocity_distance(ctx, root, false),
+        Figure::VelocityInferred => velocity_distance(ctx, root, true),
         Figure::Sky(sky) => sky_map(ctx, root, sky),
+        Figure::FlowMap(sky) => flow_map(ctx, root, sky),
+        Figure::BulkFlow => bulk_flow(ctx, root),
         Figure::Pulls => pulls(ctx, root),
+    }
+}
+
+/// A paper-style SVG sized in points: the drawing's user unit is one point.
+fn in_points(svg: &str, size: (u32, u32)) -> String {
+    let old = format!("width=\"{}\" height=\"{}\"", size.0, size.1);
+    // plotters writes viewBox="0 0 W H" after the size, so the user unit becomes 1 pt.
+    let new = format!("width=\"{}pt\" height=\"{}pt\"", size.0, size.1);
+    match svg.find(&old) {
+        Some(i) if i < 400 => format!("{}{}{}", &svg[..i], new, &svg[i + old.len()..]),
+        _ => svg.to_string(),
     }
 }
 

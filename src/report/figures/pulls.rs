@@ -63,6 +63,25 @@ pub(super) fn pulls<DB: DrawingBackend>(
         .zip(&outl)
         .map(|(a, b)| (a + b) as f64)
         .fold(peak_model, f64::max);
+    let mut t = crate::report::tables::DataTable::new(&[
+        "bin_lo",
+        "bin_hi",
+        "n",
+        "n_outliers",
+        "unit_normal",
+    ]);
+    for i in 0..bins {
+        let (a, b) = (-limit + i as f64 * width, -limit + (i + 1) as f64 * width);
+        let mid = 0.5 * (a + b);
+        t.push(vec![
+            a.into(),
+            b.into(),
+            core[i].into(),
+            outl[i].into(),
+            (peak_model * (-0.5 * mid * mid).exp()).into(),
+        ]);
+    }
+    ctx.set_table(t);
     let x = Axis::linear(-limit, limit);
     let y = Axis::linear(0.0, peak * 1.5);
     let (title, x_desc) = if truth {
@@ -155,10 +174,29 @@ pub(super) fn pulls<DB: DrawingBackend>(
     } else {
         "too few rows for statistics".to_string()
     };
+    let stats_label = stats_text.clone();
     c.draw_series(std::iter::empty::<PathElement<(f64, f64)>>())
         .map_err(de)?
         .label(stats_text)
         .legend(|(a, b)| EmptyElement::at((a, b)));
-    legend(&mut c, sc, SeriesLabelPosition::UpperLeft)?;
+    let mut occupied: Vec<(f64, f64)> = Vec::new();
+    for i in 0..bins {
+        let top = (core[i] + outl[i]) as f64;
+        let xm = -limit + (i as f64 + 0.5) * width;
+        let mut h = 0.0;
+        while h <= top {
+            occupied.push((xm, h));
+            h += (peak / 20.0).max(1.0);
+        }
+        occupied.push((xm, peak_model * (-0.5 * xm * xm).exp()));
+    }
+    let labels = vec![
+        format!("rows with status ok, not outliers ({})", n - n_out),
+        format!("outliers ({n_out}), stacked"),
+        format!("unit normal N(0, 1) for N = {n} rows"),
+        stats_label.clone(),
+    ];
+    let pos = super::layout::free_corner(&c, sc, &labels, &occupied);
+    legend(&mut c, sc, pos)?;
     Ok(())
 }

@@ -77,7 +77,7 @@ fn star(centre: (i32, i32), outer: f64, inner: f64) -> Vec<(i32, i32)> {
         .collect()
 }
 
-fn draw_star<DB: DrawingBackend>(
+pub(super) fn draw_star<DB: DrawingBackend>(
     area: &Area<DB>,
     sc: Scale,
     at: (i32, i32),
@@ -92,7 +92,7 @@ fn draw_star<DB: DrawingBackend>(
         .map_err(de)
 }
 
-fn draw_dipole<DB: DrawingBackend>(
+pub(super) fn draw_dipole<DB: DrawingBackend>(
     area: &Area<DB>,
     sc: Scale,
     at: (i32, i32),
@@ -144,6 +144,24 @@ pub(super) fn sky_map<DB: DrawingBackend>(
         };
         eb.total_cmp(&ea)
     });
+    {
+        let (ln, bn) = match sky {
+            SkyChoice::Galactic => ("l", "b"),
+            SkyChoice::Supergalactic => ("sgl", "sgb"),
+        };
+        let cols: [&'static str; 5] = [ln, bn, "v_pec", "v_pec_err", "outlier"];
+        let mut t = crate::report::tables::DataTable::new(&cols);
+        for r in &rows {
+            t.push(vec![
+                r.lon.into(),
+                r.lat.into(),
+                r.v.into(),
+                r.v_err.into(),
+                (if r.outlier { "true" } else { "false" }).into(),
+            ]);
+        }
+        ctx.set_table(t);
+    }
     let abs_core = sorted(rows.iter().filter(|r| !r.outlier).map(|r| r.v.abs()));
     let vmax = nice_ceil(quantile(&abs_core, 0.9).max(50.0));
     let n_out = rows.iter().filter(|r| r.outlier).count();
@@ -433,12 +451,13 @@ pub(super) fn sky_map<DB: DrawingBackend>(
     let bar_top = (cy - HALF_HEIGHT * k + 50.0 * sc.0) as i32;
     let bar_bottom = (cy + HALF_HEIGHT * k - 10.0 * sc.0) as i32;
     let bar_wd = sc.px(34.0);
-    text(
+    super::typeset::draw(
         &body,
-        "v_pec (km/s)",
+        "v_{pec} (km s^{−1})",
         (bx - sc.px(10.0), bar_top - sc.px(40.0)),
         &sc.font(23.0),
-        (HPos::Left, VPos::Center),
+        HPos::Left,
+        false,
     )?;
     let span = (bar_bottom - bar_top).max(10);
     for i in 0..span {
