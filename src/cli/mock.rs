@@ -144,10 +144,7 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
     let correlated = a
         .correlated
         .then(|| flowsift::run::correlated_mock::CorrelatedChoice {
-            fsigma8: a.fsigma8.unwrap_or_else(|| {
-                flowsift::physics::power::PowerParams::planck2018().sigma8
-                    * flowsift::physics::power::growth_rate_of(&plan.shared.cosmology.params, 0.0)
-            }),
+            fsigma8: a.fsigma8,
             k_max: a.correlated_kmax,
         });
     let n = flowsift::run::generate::run_mock_with(&plan, correlated.as_ref())
@@ -157,5 +154,8 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
         plan.spec.name,
         a.output.display()
     );
+    if correlated.is_some() {
+        println!("note: velocities drawn from the linear ΛCDM covariance of the objects (fiducial cosmology, linear theory); the mock's record states fσ8, k_max and the jitter used");
+    }
     Ok(())
 }

@@ -18,8 +18,9 @@ use super::RunError;
 /// The settings of a correlated mock.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, JsonSchema)]
 pub struct CorrelatedChoice {
-    /// Amplitude of the velocity covariance.
-    pub fsigma8: f64,
+    /// Amplitude of the velocity covariance (default: Planck 2018 σ8 times f = Ω_m^γ of the
+    /// cosmology at z = 0).
+    pub fsigma8: Option<f64>,
     /// Upper wavenumber of the covariance, h Mpc⁻¹ (default 0.2).
     pub k_max: Option<f64>,
 }
@@ -57,12 +58,16 @@ pub fn correlated_velocities(
         .map(|(n, d)| [n[0] * d * h, n[1] * d * h, n[2] * d * h])
         .collect();
     let (power, params) = power_for(cosmology, 1.0, None, None)?;
+    let fsigma8 = choice.fsigma8.unwrap_or_else(|| {
+        crate::physics::power::PowerParams::planck2018().sigma8
+            * crate::physics::power::growth_rate_of(cosmology.params(), 0.0)
+    });
     let corr =
         RadialVelocityCorrelation::new(&power, 1.0, 2.0 * largest_distance(&positions), k_max);
     let draw = draw_correlated(
         &corr,
         &positions,
-        choice.fsigma8,
+        fsigma8,
         spec.seed ^ 0x636f_7272_656c_6174,
     )
     .map_err(RunError::Failed)?;
@@ -74,7 +79,7 @@ pub fn correlated_velocities(
         by_direction,
         description: format!(
             "Velocities drawn from the linear ΛCDM covariance of the objects' true positions (Górski 1988 kernel) with fσ8 = {}, P(k) shape Eisenstein & Hu (1998) for h = {}, Ω_m = {}, Ω_b = {}, n_s = {}, k ≤ {} h/Mpc; Cholesky factorisation with a diagonal jitter of {:e} of the variance; the bulk flow and σ_v of the spec are added on top.",
-            short_number(choice.fsigma8),
+            short_number(fsigma8),
             short_number(params.h),
             short_number(params.omega_m),
             short_number(params.omega_b),
