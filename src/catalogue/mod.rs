@@ -9,6 +9,7 @@ mod cfitsio;
 pub mod clock;
 pub mod column_schema;
 pub mod contained;
+pub mod covariance_file;
 pub mod ecsv;
 pub mod field_io;
 pub mod fits;

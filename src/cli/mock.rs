@@ -6,7 +6,6 @@ use anyhow::anyhow;
 use clap::Args;
 
 use flowsift::plan::{plan_mock, MockOrder, MockOverrides};
-use flowsift::run::generate::run_mock;
 use flowsift::settings::{ModelChoice, RunConfig};
 
 use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
@@ -89,6 +88,16 @@ pub struct MockArgs {
     /// Leave out |b| below this many degrees (zone of avoidance).
     #[arg(long = "sky-cut", value_name = "DEG", allow_negative_numbers = true)]
     pub sky_cut: Option<f64>,
+    /// Draw the peculiar velocities from the linear ΛCDM covariance of the objects themselves
+    /// (Cholesky factorisation; at most 5000 objects), at the amplitude --fsigma8.
+    #[arg(long)]
+    pub correlated: bool,
+    /// fσ8 of the correlated velocities (default: Planck 2018 σ8 × Ω_m^0.55 of the cosmology).
+    #[arg(long, value_name = "FS8", requires = "correlated")]
+    pub fsigma8: Option<f64>,
+    /// Upper wavenumber of the correlated velocities' covariance, h/Mpc (default 0.2).
+    #[arg(long = "correlated-kmax", value_name = "K", requires = "correlated")]
+    pub correlated_kmax: Option<f64>,
     #[command(flatten)]
     pub cosmology: CosmologyFlags,
     #[command(flatten)]
@@ -135,11 +144,21 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
         command_line: std::env::args().collect::<Vec<_>>().join(" "),
     })
     .map_err(|e| anyhow!(e))?;
-    let n = run_mock(&plan).map_err(|e| anyhow!(e))?;
+    let correlated = a
+        .correlated
+        .then_some(flowsift::run::correlated_mock::CorrelatedChoice {
+            fsigma8: a.fsigma8,
+            k_max: a.correlated_kmax,
+        });
+    let n = flowsift::run::generate::run_mock_with(&plan, correlated.as_ref())
+        .map_err(|e| anyhow!(e))?;
     println!(
         "wrote {n} objects of '{}' to {}",
         plan.spec.name,
         a.output.display()
     );
+    if correlated.is_some() {
+        println!("note: velocities drawn from the linear ΛCDM covariance of the objects (fiducial cosmology, linear theory); the mock's record states fσ8, k_max and the jitter used");
+    }
     Ok(())
 }

@@ -2,11 +2,14 @@
 
 mod config;
 mod correct;
+mod covariance;
 mod demo;
 mod distances;
 mod field;
+mod flow_moments;
 mod frames;
 mod galaxy;
+mod growth;
 mod mock;
 mod options;
 mod plot;
@@ -42,6 +45,10 @@ pub enum Command {
     Outliers(Box<sample_stages::OutliersArgs>),
     /// The maximum-likelihood bulk flow of a flowsift output and its ΛCDM expectation.
     Bulkflow(Box<sample_stages::BulkFlowArgs>),
+    /// The linear-theory ΛCDM covariance of a sample's radial peculiar velocities.
+    Covariance(Box<covariance::CovarianceArgs>),
+    /// The maximum-likelihood growth rate fσ8 of a sample.
+    Growth(Box<growth::GrowthArgs>),
     /// The flow-sample export (supergalactic positions, velocities, errors, flags).
     Export(Box<sample_stages::ExportArgs>),
     /// Hubble-diagram redshifts corrected with a velocity-field model (z_cos_model, errors).
@@ -74,6 +81,8 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
         Command::Outliers(a) => sample_stages::outliers(*a),
         Command::Bulkflow(a) => sample_stages::bulkflow(*a),
         Command::Export(a) => sample_stages::export(*a),
+        Command::Covariance(a) => covariance::run(*a),
+        Command::Growth(a) => growth::run(*a),
         Command::Distances(a) => distances::run(a),
         Command::Frames(a) => frames::run(a),
         Command::Demo(a) => demo::run(a),

@@ -123,6 +123,8 @@ pub struct BulkFlowArgs {
     #[command(flatten)]
     pub flags: BulkFlowFlags,
     #[command(flatten)]
+    pub moments: super::flow_moments::FlowMomentsFlags,
+    #[command(flatten)]
     pub common: StageCommon,
     /// Print JSON.
     #[arg(long)]
@@ -144,7 +146,19 @@ pub fn bulkflow(a: BulkFlowArgs) -> anyhow::Result<()> {
         a.common.override_input_settings,
     ))
     .map_err(|e| anyhow!(e))?;
-    let (report, notes) = run_bulkflow(&plan).map_err(|e| anyhow!(e))?;
+    let (report, moments, notes) = if a.moments.requested() {
+        let (r, m, value, notes) =
+            flowsift::run::flow_moments::run_flow_moments(&plan, &a.moments.choice())
+                .map_err(|e| anyhow!(e))?;
+        if a.json {
+            println!("{}", serde_json::to_string_pretty(&value)?);
+            return Ok(());
+        }
+        (r, Some(m), notes)
+    } else {
+        let (r, notes) = run_bulkflow(&plan).map_err(|e| anyhow!(e))?;
+        (r, None, notes)
+    };
     if a.json {
         println!("{}", serde_json::to_string_pretty(&report)?);
         return Ok(());
@@ -190,6 +204,9 @@ pub fn bulkflow(a: BulkFlowArgs) -> anyhow::Result<()> {
             l.lcdm_rms[0], l.lcdm_rms[1], l.lcdm_rms[2], l.chi2, l.probability
         );
         println!("  {}", l.power_spectrum);
+    }
+    if let Some(m) = &moments {
+        super::flow_moments::print(m);
     }
     if let Some(o) = &a.output {
         println!("wrote {}", o.display());

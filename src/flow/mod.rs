@@ -7,11 +7,15 @@ mod error;
 pub mod export;
 pub mod fit;
 pub mod groups;
+pub mod growth;
 pub mod lcdm;
 pub mod line_of_sight;
+pub mod minimum_variance;
+pub mod monopole;
 pub mod outliers;
 pub mod sample;
 pub mod sanity;
+pub mod velocity_data;
 
 pub use error::FlowError;
 pub use sample::FlowSample;

@@ -42,6 +42,7 @@
 //! truth columns (and every other object's draws) unchanged. Changing this order changes
 //! every mock for a given seed.
 
+pub mod correlated;
 pub mod table;
 
 use rand::{Rng, SeedableRng};

@@ -14,6 +14,14 @@ use super::model::build_model;
 
 /// Make and write the mock; returns the number of objects.
 pub fn run_mock(plan: &MockPlan) -> Result<usize, super::RunError> {
+    run_mock_with(plan, None)
+}
+
+/// As [`run_mock`], with the velocities drawn from the ΛCDM covariance when `correlated`.
+pub fn run_mock_with(
+    plan: &MockPlan,
+    correlated: Option<&super::correlated_mock::CorrelatedChoice>,
+) -> Result<usize, super::RunError> {
     let params = plan.shared.cosmology.params;
     let cosmology = cosmology_reaching(params, plan.spec.z_max)?;
     let model = build_model(&plan.model, &params)?.map(|m| m.0);
@@ -31,8 +39,34 @@ pub fn run_mock(plan: &MockPlan) -> Result<usize, super::RunError> {
             .from_galactic(&rot, n_gal);
         m.radial_velocity([n[0] * r_mpc * k, n[1] * r_mpc * k, n[2] * r_mpc * k])
     };
-    let field: Option<&crate::mock::RadialField<'_>> =
-        if model.is_some() { Some(&radial) } else { None };
+    let drawn = match correlated {
+        None => None,
+        Some(choice) => {
+            let first = crate::mock::generate(
+                &plan.spec,
+                &cosmology,
+                &plan.shared.frames.cmb,
+                plan.shared.convention,
+            )
+            .map_err(|e| e.to_string())?;
+            Some(super::correlated_mock::correlated_velocities(
+                &plan.spec, &first, &cosmology, choice,
+            )?)
+        }
+    };
+    let with_drawn = |n_gal: [f64; 3], r_mpc: f64| -> Option<f64> {
+        let a = radial(n_gal, r_mpc);
+        let b = drawn.as_ref().and_then(|d| d.at(n_gal));
+        match (a, b) {
+            (None, None) => None,
+            (a, b) => Some(a.unwrap_or(0.0) + b.unwrap_or(0.0)),
+        }
+    };
+    let field: Option<&crate::mock::RadialField<'_>> = if model.is_some() || drawn.is_some() {
+        Some(&with_drawn)
+    } else {
+        None
+    };
     let mock = crate::mock::generate_with_field(
         &plan.spec,
         &cosmology,
@@ -59,6 +93,13 @@ pub fn run_mock(plan: &MockPlan) -> Result<usize, super::RunError> {
         "Invented data: a mock drawn from a known flow, with its truth in the true_* columns."
             .into(),
     ];
+    if let (Some(choice), Some(d)) = (correlated, &drawn) {
+        record.details.insert(
+            "correlated".into(),
+            serde_json::to_string(choice).map_err(|e| e.to_string())?,
+        );
+        record.cautions.push(d.description.clone());
+    }
     write_table(
         &plan.output,
         &table,

@@ -4,12 +4,16 @@
 //! everything with the run's record. The command line and the demo both call this with a
 //! checked [`VelocityPlan`]; it never prints (progress goes through a callback).
 
+pub mod correlated_mock;
+pub mod covariance;
 pub mod demo;
 pub mod distances;
 pub mod error;
+pub mod flow_moments;
 pub mod galaxy;
 pub mod generate;
 pub mod given_frames;
+pub mod growth;
 pub mod hubble_correction;
 pub mod model;
 pub mod sample_stages;

@@ -18,7 +18,9 @@
 //! - bulk-flow window W²_ij(k) and the expected covariance of a weighted (e.g. maximum
 //!   likelihood) bulk-flow estimate: Watkins, Feldman & Hudson (2009), MNRAS 392, 743,
 //!   arXiv:0809.4041 — [`bulk_flow_window`], [`lcdm_bulk_flow_covariance`];
-//! - rms bulk flow of a top-hat sphere — [`tophat_bulk_flow_rms`].
+//! - rms bulk flow of a top-hat sphere — [`tophat_bulk_flow_rms`];
+//! - the object-by-object covariance of radial velocities (same kernel, Górski 1988; Watkins,
+//!   Feldman & Hudson 2009) — [`radial_velocity_covariance`], [`RadialVelocityCorrelation`].
 //!
 //! # Numerics
 //! Integrals over k are done in ln k. The σ(R) and top-hat integrals use composite 8-point
@@ -32,12 +34,17 @@
 mod bessel;
 mod quadrature;
 mod spectrum;
+mod velocity_covariance;
 mod window;
 
 pub use bessel::tophat_window;
 pub use spectrum::{
     growth_rate, growth_rate_of, tophat_bulk_flow_rms, transfer_eh98, transfer_eh98_no_wiggle,
     LinearPower, PowerParams,
+};
+pub use velocity_covariance::{
+    largest_distance, power_params_for, radial_velocity_covariance, RadialVelocityCorrelation,
+    LINEAR_K_MAX,
 };
 pub use window::{
     bulk_flow_window, lcdm_bulk_flow_covariance, lcdm_bulk_flow_covariance_by_separation,

@@ -323,25 +323,36 @@ const SEPARATION_STEP_SQRT: f64 = 0.02;
 /// the kernel of [`bulk_flow_window`] integrated over k). Tabulated on a uniform grid in
 /// s = √A (fine at small A, where high k matters) and interpolated by cubic splines with
 /// slope zero at s = 0 (both functions are even in A).
-struct SeparationTable {
+pub(super) struct SeparationTable {
     psi1: UniformSpline,
     psi2: UniformSpline,
 }
 
 impl SeparationTable {
     fn new(power: &LinearPower, a_max: f64) -> SeparationTable {
+        SeparationTable::up_to(power, a_max, QUAD_K_MAX)
+    }
+
+    /// The table with the k integrals cut at `k_max` (h Mpc⁻¹; at most 10³), for
+    /// separations up to `a_max` (h⁻¹ Mpc).
+    pub(super) fn up_to(power: &LinearPower, a_max: f64, k_max: f64) -> SeparationTable {
+        let k_max = k_max.min(QUAD_K_MAX);
         let s_max = a_max.max(1.0).sqrt();
         let n = (s_max / SEPARATION_STEP_SQRT).ceil() as usize + 2;
         let h = SEPARATION_STEP_SQRT;
         // k nodes: Gauss–Legendre panels in ln k below 10⁻³ h/Mpc and above 5 h/Mpc, and
         // in k between, where the panels (a quarter period of the fastest oscillation,
         // π/(2 A_max)) follow j(kA) at the largest separation.
-        let (mut ks, mut ws) = lnk_nodes(1e-10, 1e-3, 0.05, QUAD_GL_POINTS);
+        let (mut ks, mut ws) = lnk_nodes(1e-10, 1e-3_f64.min(k_max), 0.05, QUAD_GL_POINTS);
         let (gx, gw) = gauss_legendre(QUAD_GL_POINTS);
-        let (k_lo, k_hi) = (1e-3, 5.0);
+        let (k_lo, k_hi) = (1e-3, 5.0_f64.min(k_max));
         let width = (std::f64::consts::FRAC_PI_2 / (n as f64 * h).powi(2)).min(0.01);
-        let panels = ((k_hi - k_lo) / width).ceil() as usize;
-        let width = (k_hi - k_lo) / panels as f64;
+        let panels = if k_hi > k_lo {
+            ((k_hi - k_lo) / width).ceil() as usize
+        } else {
+            0
+        };
+        let width = (k_hi - k_lo) / panels.max(1) as f64;
         for p in 0..panels {
             let mid = k_lo + (p as f64 + 0.5) * width;
             for (x, w) in gx.iter().zip(&gw) {
@@ -349,9 +360,11 @@ impl SeparationTable {
                 ws.push(0.5 * width * w);
             }
         }
-        let (k3, w3) = lnk_nodes(k_hi, QUAD_K_MAX, QUAD_PANEL_LNK, QUAD_GL_POINTS);
-        ks.extend(k3);
-        ws.extend(w3);
+        if k_max > k_hi {
+            let (k3, w3) = lnk_nodes(k_hi, k_max, QUAD_PANEL_LNK, QUAD_GL_POINTS);
+            ks.extend(k3);
+            ws.extend(w3);
+        }
         let wp: Vec<f64> = ks.iter().zip(&ws).map(|(&k, &w)| w * power.pk(k)).collect();
         let values: Vec<(f64, f64)> = (0..n)
             .into_par_iter()
@@ -381,6 +394,19 @@ impl SeparationTable {
             psi1: UniformSpline::even_at_zero(h, values.iter().map(|v| v.0).collect()),
             psi2: UniformSpline::even_at_zero(h, values.iter().map(|v| v.1).collect()),
         }
+    }
+
+    /// F = ∫ dk P(k) f_mn(k) = cos α Ψ1(A) − (pp/A²) Ψ2(A) for a pair at separation `sep`
+    /// (h⁻¹ Mpc), cos α = `cos_a`, pp/A² = `pp_a2`; (h⁻¹ Mpc)².
+    #[inline(always)]
+    pub(super) fn pair(&self, sep: f64, cos_a: f64, pp_a2: f64) -> f64 {
+        let s = sep.sqrt();
+        cos_a * self.psi1.eval(s) - pp_a2 * self.psi2.eval(s)
+    }
+
+    /// F of an object with itself: Ψ1(0) = (1/3) ∫ P dk.
+    pub(super) fn self_pair(&self) -> f64 {
+        self.psi1.eval(0.0)
     }
 }
 
