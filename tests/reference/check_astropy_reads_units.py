@@ -6,7 +6,7 @@ the flowsift binary as the argument:
 
     python3 -m venv /tmp/fmtenv
     /tmp/fmtenv/bin/pip install astropy==8.0.2 numpy==2.4.6 pyerfa==2.0.1.5 \
-        pyarrow==26.0.1 PyYAML==6.0.4
+        pyarrow==26.0.1 PyYAML==6.0.4 pandas==3.1.1
     /tmp/fmtenv/bin/python tests/reference/check_astropy_reads_units.py target/debug/flowsift
 
 It runs `flowsift velocities` on the demo catalogue into Parquet, VOTable, ECSV and FITS
