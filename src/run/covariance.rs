@@ -11,7 +11,7 @@ use serde::{Deserialize, Serialize};
 use crate::catalogue::covariance_file::{
     write_covariance_fits, write_covariance_npy, Card, CardValue,
 };
-use crate::catalogue::{read_table, write_json_atomically, ReadOptions, RunRecord, Table};
+use crate::catalogue::{write_json_atomically, RunRecord};
 use crate::flow::velocity_data::{velocity_objects, SampleQuantity, VelocityObjects};
 use crate::flow::FlowSample;
 use crate::physics::cosmology::Cosmology;
@@ -101,25 +101,7 @@ pub fn is_npy(path: &Path) -> bool {
         .is_some_and(|e| e.eq_ignore_ascii_case("npy"))
 }
 
-pub(crate) fn read_input(plan: &StagePlan) -> Result<Table, RunError> {
-    read_table(
-        &plan.input,
-        &ReadOptions {
-            hdu: plan.config().input.hdu.clone(),
-        },
-    )
-    .map_err(Into::into)
-}
-
-/// A distance table reaching past every z_cmb of the table.
-pub(crate) fn cosmology_for(plan: &StagePlan, table: &Table) -> Result<Cosmology, RunError> {
-    let z_top = crate::flow::sample::float_column(table, "z_cmb")
-        .unwrap_or_default()
-        .into_iter()
-        .filter(|z| z.is_finite())
-        .fold(0.0, f64::max);
-    super::cosmology_reaching(plan.shared.cosmology.params, z_top)
-}
+pub(crate) use super::standalone::{cosmology_for, read_input};
 
 /// The stage's record: shared settings, the input's columns, `details` under `key`.
 pub(crate) fn stage_record(
@@ -128,18 +110,7 @@ pub(crate) fn stage_record(
     key: &str,
     details: &impl Serialize,
 ) -> RunRecord {
-    let mut r = plan.shared.record(
-        &plan.step,
-        &plan.command_line,
-        &[("catalogue", plan.input.as_path())],
-    );
-    r.settings.columns = plan.config().columns.clone();
-    r.settings.input = plan.config().input.clone();
-    r.rows = Some(crate::catalogue::record::RowCounts {
-        read: rows,
-        ok: rows,
-    });
-    r.cautions = plan.shared.cautions();
+    let mut r = super::standalone::stage_record(plan, rows);
     r.details.insert(
         key.into(),
         serde_json::to_string(details).unwrap_or_default(),

@@ -12,7 +12,7 @@ use crate::plan::StagePlan;
 use super::cosmology_reaching;
 use super::sample_stages::{add_outliers, bulk_flow_of_table};
 
-fn read_input(plan: &StagePlan) -> Result<Table, super::RunError> {
+pub(crate) fn read_input(plan: &StagePlan) -> Result<Table, super::RunError> {
     read_table(
         &plan.input,
         &ReadOptions {
@@ -23,7 +23,7 @@ fn read_input(plan: &StagePlan) -> Result<Table, super::RunError> {
 }
 
 /// A distance table reaching past every z_cmb of the table.
-fn cosmology_for(plan: &StagePlan, table: &Table) -> Result<Cosmology, super::RunError> {
+pub(crate) fn cosmology_for(plan: &StagePlan, table: &Table) -> Result<Cosmology, super::RunError> {
     let z_top = crate::flow::sample::float_column(table, "z_cmb")
         .unwrap_or_default()
         .into_iter()
@@ -34,7 +34,7 @@ fn cosmology_for(plan: &StagePlan, table: &Table) -> Result<Cosmology, super::Ru
 
 /// The stage's record: the shared settings, the columns the input was made with, the
 /// stage's own section.
-fn stage_record(plan: &StagePlan, rows: usize) -> RunRecord {
+pub(crate) fn stage_record(plan: &StagePlan, rows: usize) -> RunRecord {
     let mut r = plan.shared.record(
         &plan.step,
         &plan.command_line,
