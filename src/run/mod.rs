@@ -1,7 +1,8 @@
-//! One `velocities` run end to end, as named steps: read the catalogue, resolve its columns,
-//! extract the inputs, build the distance table, correct for Malmquist bias, derive the
-//! velocities, Monte Carlo, groups, the flow stages (outliers, bulk flow, export), write
-//! everything with the run's record. The command line and the demo both call this with a
+//! One `velocities` run end to end, as named steps: read the catalogue (the edge); then, in
+//! memory ([`compute_velocities`]), resolve its columns, extract the inputs, build the
+//! distance table, correct for Malmquist bias, derive the velocities, Monte Carlo, groups,
+//! the flow stages (outliers, bulk flow, export) and the run's record; write everything
+//! (the edge). The command line and the demo both call this with a
 //! checked [`VelocityPlan`]; it never prints (progress goes through a callback).
 
 pub mod correlated_mock;
@@ -141,17 +142,12 @@ pub(crate) fn object_context<'a>(
     }
 }
 
-/// The catalogue as read: the table, its text (for a delimited output), the derived columns
-/// of an earlier run that were dropped, and the partitions of a partitioned survey.
-type ReadCatalogue = (
-    Table,
-    Option<SourceText>,
-    Vec<String>,
-    Option<Vec<Partition>>,
-);
+/// The catalogue as read: the table, its text (for a delimited output), and the partitions
+/// of a partitioned survey.
+type ReadCatalogue = (Table, Option<SourceText>, Option<Vec<Partition>>);
 
-/// Step 1: the catalogue, with its text when a delimited output can copy its columns, and
-/// without the derived columns of an earlier run (they are recomputed).
+/// Step 1: the catalogue, with its text when a delimited output can copy its columns (the
+/// derived columns of an earlier run are dropped by [`compute_velocities`]).
 fn read_catalogue(plan: &VelocityPlan) -> Result<ReadCatalogue, RunError> {
     let options = ReadOptions {
         hdu: plan.config().input.hdu.clone(),
@@ -159,8 +155,7 @@ fn read_catalogue(plan: &VelocityPlan) -> Result<ReadCatalogue, RunError> {
     if plan.partitioned {
         let (table, parts) = crate::catalogue::partitioned::read_partitioned(&plan.input, &options)
             .map_err(|e| e.to_string())?;
-        let (table, replaced) = sample_stages::strip_earlier_run(table);
-        return Ok((table, None, replaced, Some(parts)));
+        return Ok((table, None, Some(parts)));
     }
     let (table, text) = if matches!(
         plan.output_format,
@@ -174,8 +169,7 @@ fn read_catalogue(plan: &VelocityPlan) -> Result<ReadCatalogue, RunError> {
             None,
         )
     };
-    let (table, replaced) = sample_stages::strip_earlier_run(table);
-    Ok((table, text, replaced, None))
+    Ok((table, text, None))
 }
 
 /// The largest heliocentric redshift of a row that is still ok.
@@ -273,16 +267,54 @@ fn velocity_record(
     r
 }
 
-/// Run `velocities` as `plan` says.
+/// Everything a `velocities` run computes from a catalogue in memory, before any file is
+/// written: the output table, the group table, the bulk flow, the export, and the record
+/// they are written with.
+pub struct VelocityResult {
+    pub table: Table,
+    pub record: RunRecord,
+    pub groups: Option<Table>,
+    pub bulk_flow: Option<crate::flow::bulk_flow_report::BulkFlowReport>,
+    pub export: Option<(Table, crate::flow::export::ExportSummary)>,
+    pub rows_read: usize,
+    pub rows_ok: usize,
+    /// Rows per status, every status listed.
+    pub counts: Vec<(String, usize)>,
+    pub mapping: Vec<String>,
+    pub renamed: Vec<(String, String)>,
+    pub notes: Vec<String>,
+    pub replaced: Vec<String>,
+    pub outliers: Option<(Vec<(String, usize)>, usize)>,
+    pub sample_check: Option<crate::flow::sanity::SampleCheck>,
+}
+
+/// Run `velocities` as `plan` says: read at the edge, compute in memory, write at the edge.
 pub fn run_velocities(
     plan: &VelocityPlan,
     progress: &(dyn Fn(Phase, usize) + Sync),
 ) -> Result<RunSummary, RunError> {
+    let (table, source_text, partitions) = read_catalogue(plan)?;
+    let read_notes = crate::catalogue::atomic::leftovers_note(&plan.output)
+        .into_iter()
+        .collect();
+    let result = compute_velocities(plan, table, read_notes, progress)?;
+    write_velocities(plan, result, source_text, partitions.as_deref())
+}
+
+/// The computing part of a `velocities` run on a catalogue already in memory (no file is
+/// read or written): `read_notes` are what the reading side has to say (kept in the
+/// record's cautions in their place).
+pub fn compute_velocities(
+    plan: &VelocityPlan,
+    table: Table,
+    read_notes: Vec<String>,
+    progress: &(dyn Fn(Phase, usize) + Sync),
+) -> Result<VelocityResult, RunError> {
     let cfg = plan.config();
     let shared = &plan.shared;
     let where_ = |e: RunError| RunError::in_file(&plan.input, e);
 
-    let (table, source_text, replaced, partitions) = read_catalogue(plan)?;
+    let (table, replaced) = sample_stages::strip_earlier_run(table);
     let columns = resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit)
         .map_err(|e| where_(e.into()))?;
     let mut input = pipeline::extract(&table, &columns).map_err(|e| where_(e.into()))?;
@@ -310,7 +342,7 @@ pub fn run_velocities(
     let mut notes = shared.cautions();
     notes.extend(table.notes.iter().cloned());
     notes.extend(frame_notes);
-    notes.extend(crate::catalogue::atomic::leftovers_note(&plan.output));
+    notes.extend(read_notes);
     if !replaced.is_empty() {
         notes.push("The input is a flowsift output: its derived columns were recomputed.".into());
     }
@@ -451,12 +483,57 @@ pub fn run_velocities(
         },
         &notes,
     );
+    let counts = RowStatus::ALL
+        .iter()
+        .map(|s| (s.name().to_string(), *counts_map.get(s).unwrap_or(&0)))
+        .collect();
+    Ok(VelocityResult {
+        table: out_table,
+        record,
+        groups: group_out,
+        bulk_flow: bulk,
+        export,
+        rows_read,
+        rows_ok,
+        counts,
+        mapping,
+        renamed,
+        notes,
+        replaced,
+        outliers: outlier_summary,
+        sample_check,
+    })
+}
+
+/// The writing part of a `velocities` run: every output, atomically, with the run's record.
+fn write_velocities(
+    plan: &VelocityPlan,
+    result: VelocityResult,
+    source_text: Option<SourceText>,
+    partitions: Option<&[Partition]>,
+) -> Result<RunSummary, RunError> {
+    let VelocityResult {
+        table: out_table,
+        record,
+        groups: group_out,
+        bulk_flow: bulk,
+        export,
+        rows_read,
+        rows_ok,
+        counts,
+        mapping,
+        renamed,
+        notes,
+        replaced,
+        outliers: outlier_summary,
+        sample_check,
+    } = result;
     let provenance = record.to_provenance();
     let options = WriteOptions {
         force: plan.force,
         protected: plan.inputs().iter().map(|(_, p)| p.to_path_buf()).collect(),
     };
-    match &partitions {
+    match partitions {
         Some(parts) => crate::catalogue::partitioned::write_partitioned(
             &plan.output,
             &out_table,
@@ -490,10 +567,6 @@ pub fn run_velocities(
         export_summary = Some((summary, path.clone()));
     }
 
-    let counts = RowStatus::ALL
-        .iter()
-        .map(|s| (s.name().to_string(), *counts_map.get(s).unwrap_or(&0)))
-        .collect();
     Ok(RunSummary {
         input: plan.input.clone(),
         output: plan.output.clone(),
