@@ -30,14 +30,39 @@ pub fn write_bulk_flow(
 pub fn read_bulk_flow(path: &Path) -> Result<BulkFlowReport, CatalogueError> {
     let text =
         std::fs::read_to_string(path).map_err(|e| CatalogueError::read(path, e.to_string()))?;
-    let value: serde_json::Value = serde_json::from_str(&text)
+    let mut value: serde_json::Value = serde_json::from_str(&text)
         .map_err(|e| CatalogueError::read(path, format!("not JSON: {e}")))?;
+    earlier_layout_to_current(&mut value);
     serde_json::from_value(value).map_err(|e| {
         CatalogueError::read(
             path,
             format!("not a flowsift bulk-flow result (from `flowsift bulkflow -o` or `velocities --bulk-flow`): {e}"),
         )
     })
+}
+
+/// Results written before the Galactic flow became `galactic: {v, cov}` and the fit's
+/// details `fit: {…}` had `v_galactic`, `cov`, `sigma_star`, `sigma_star_fitted`, `n_used`,
+/// `fit_space` and `chi2` at the top level: move them into the current places, so that a
+/// result an earlier version wrote still reads.
+fn earlier_layout_to_current(value: &mut serde_json::Value) {
+    let Some(map) = value.as_object_mut() else {
+        return;
+    };
+    if map.contains_key("galactic") || !map.contains_key("v_galactic") {
+        return;
+    }
+    let mut take = |key: &str| map.remove(key).unwrap_or(serde_json::Value::Null);
+    let galactic = serde_json::json!({ "v": take("v_galactic"), "cov": take("cov") });
+    let fit = serde_json::json!({
+        "quantity": take("fit_space"),
+        "n_used": take("n_used"),
+        "sigma_star": take("sigma_star"),
+        "sigma_star_fitted": take("sigma_star_fitted"),
+        "chi2": take("chi2"),
+    });
+    map.insert("galactic".into(), galactic);
+    map.insert("fit".into(), fit);
 }
 
 #[cfg(test)]
@@ -135,6 +160,35 @@ mod tests {
         let mut got = read;
         (got.amplitude_err, got.galactic.cov[1][2]) = (0.0, 0.0);
         assert_eq!(got, expected);
+    }
+
+    /// A result in the layout of the previous version (flat `v_galactic`, `cov`, fit
+    /// details at the top level) reads into the current places.
+    #[test]
+    fn a_result_in_the_earlier_layout_still_reads() {
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("old.bulkflow.json");
+        let axes =
+            r#"{"v": [1.0, 2.0, 3.0], "cov": [[4.0, 0.0, 0.0], [0.0, 4.0, 0.0], [0.0, 0.0, 4.0]]}"#;
+        let text = format!(
+            r#"{{"v_galactic": [80.0, -230.0, 43.0],
+                "cov": [[6400.0, 0.0, 0.0], [0.0, 6100.0, 0.0], [0.0, 0.0, 5900.0]],
+                "amplitude": 247.3, "amplitude_err": 80.0, "l": 289.2, "b": 10.03,
+                "supergalactic": {axes}, "equatorial": {axes},
+                "sigma_star": 150.0, "sigma_star_fitted": true, "n_used": 380,
+                "fit_space": "eta", "chi2": 391.0, "lcdm": null, "cautions": [],
+                "record": {{}}}}"#
+        );
+        std::fs::write(&path, text).unwrap();
+        let r = read_bulk_flow(&path).unwrap();
+        assert_eq!(r.galactic.v, [80.0, -230.0, 43.0]);
+        assert_eq!(r.galactic.cov[1][1], 6100.0);
+        assert_eq!(r.fit.quantity, FitSpace::Eta);
+        assert_eq!(r.fit.n_used, 380);
+        assert_eq!(r.fit.sigma_star, 150.0);
+        assert!(r.fit.sigma_star_fitted);
+        assert_eq!(r.fit.chi2, 391.0);
+        assert_eq!(r.supergalactic.v, [1.0, 2.0, 3.0]);
     }
 
     #[test]
