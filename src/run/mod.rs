@@ -4,6 +4,7 @@
 //! everything with the run's record. The command line and the demo both call this with a
 //! checked [`VelocityPlan`]; it never prints (progress goes through a callback).
 
+pub mod audit;
 pub mod correlated_mock;
 pub mod covariance;
 pub mod demo;
