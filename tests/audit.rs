@@ -356,3 +356,39 @@ fn bad_checks_are_named() {
         assert!(err.contains(words), "{err}");
     }
 }
+
+/// v_pec by the composition law with the observed luminosity-distance convention and the
+/// relativistic Doppler velocity (PHYSICS.md: 1 + z_pec = (1 + z_cmb)/(1 + z_cos),
+/// v = c((1+z)² − 1)/((1+z)² + 1); D_L = (1 + z_helio) D_M(z_cos), μ = 5 log10(D_L/10 pc);
+/// flat ΛCDM H0 = 70, Ω_m = 0.3, D_M = D_C, Hogg 1999): the audit names composition,
+/// observed, relativistic-doppler and the Planck 2018 exact boost, and the altered row.
+#[test]
+fn composition_with_observed_convention() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("comp.csv");
+    let (v, l0, b0) = PLANCK2018;
+    let mut data: Vec<Vec<f64>> = sky(100)
+        .into_iter()
+        .enumerate()
+        .map(|(k, (l, b, z))| {
+            let z_cmb = exact_boost(z, l, b, v, l0, b0);
+            // A made-up peculiar velocity of up to ±900 km/s, as a redshift factor.
+            let z_cos = (1.0 + z_cmb) / (1.0 + 0.003 * ((k as f64) * 0.9).sin()) - 1.0;
+            let d_l = (1.0 + z) * comoving(z_cos, 70.0, 0.3);
+            let mu = 5.0 * (d_l * 1e5).log10();
+            let s = ((1.0 + z_cmb) / (1.0 + z_cos)).powi(2);
+            vec![l, b, z, mu, C * (s - 1.0) / (s + 1.0)]
+        })
+        .collect();
+    data[42][4] += 300.0;
+    write_csv(&path, "glon,glat,z_helio,mu,v_pec", &data);
+    let r = audit_json(&[path.to_str().unwrap(), "--sky-frame", "galactic"]);
+    let c = column(&r, "v_pec");
+    assert_eq!(c["best"]["estimator"], "composition", "{c:#}");
+    assert_eq!(c["best"]["dl-convention"], "observed", "{c:#}");
+    assert_eq!(c["best"]["velocity"], "relativistic-doppler", "{c:#}");
+    assert_eq!(c["best"]["boost"], "exact", "{c:#}");
+    assert_eq!(c["best"]["dipole"], "planck2018", "{c:#}");
+    assert!(c["rms"].as_f64().unwrap() < 0.05, "{c:#}");
+    assert_eq!(rows(c), vec![43]);
+}

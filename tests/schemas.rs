@@ -29,3 +29,22 @@ fn schema_covers_example_sections() {
         assert!(props.contains_key(section), "{section} missing from schema");
     }
 }
+
+/// The committed JSON Schema of `audit --json` must match the report type it is generated
+/// from (`FLOWSIFT_UPDATE_SCHEMAS=1 cargo test --test schemas` regenerates it).
+#[test]
+fn audit_schema_is_current() {
+    let path = PathBuf::from(env!("CARGO_MANIFEST_DIR")).join("schemas/audit.schema.json");
+    let mut generated =
+        serde_json::to_string_pretty(&schemars::schema_for!(flowsift::run::audit::AuditReport))
+            .unwrap();
+    generated.push('\n');
+    if std::env::var_os("FLOWSIFT_UPDATE_SCHEMAS").is_some() {
+        std::fs::write(&path, &generated).unwrap();
+    }
+    let committed = std::fs::read_to_string(&path).unwrap_or_default();
+    assert!(
+        committed == generated,
+        "schemas/audit.schema.json is stale; regenerate with FLOWSIFT_UPDATE_SCHEMAS=1 cargo test --test schemas"
+    );
+}
