@@ -392,3 +392,64 @@ fn composition_with_observed_convention() {
     assert!(c["rms"].as_f64().unwrap() < 0.05, "{c:#}");
     assert_eq!(rows(c), vec![43]);
 }
+
+/// A distance column in h⁻¹ Mpc made from μ with h = 0.73: D_L = 10^(μ/5 − 5) Mpc (the
+/// definition of the distance modulus, μ = 5 log10(D_L/10 pc)) and D[h⁻¹ Mpc] = h·D[Mpc].
+/// The audit names mpc-over-h with the implied H0 = 73 and the luminosity distance.
+#[test]
+fn distance_in_mpc_over_h_implies_h0() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("dist.csv");
+    let mut data: Vec<Vec<f64>> = sky(90)
+        .into_iter()
+        .enumerate()
+        .map(|(k, (l, b, z))| {
+            let mu = 5.0 * (C * z / 70.0 * 1e5).log10() + 0.2 * ((k as f64) * 1.3).sin();
+            vec![l, b, z, mu, 0.73 * 10f64.powf(mu / 5.0 - 5.0)]
+        })
+        .collect();
+    data[30][4] *= 1.2;
+    write_csv(&path, "glon,glat,z_helio,mu,dist_h", &data);
+    let r = audit_json(&[
+        path.to_str().unwrap(),
+        "--sky-frame",
+        "galactic",
+        "--check",
+        "dist_h:distance",
+    ]);
+    let c = column(&r, "dist_h");
+    assert_eq!(c["best"]["length-unit"], "mpc-over-h", "{c:#}");
+    assert_eq!(c["best"]["distance-kind"], "dl", "{c:#}");
+    let h0 = c["best"]["h0"].as_f64().unwrap();
+    assert!((h0 - 73.0).abs() < 1e-6, "{h0}");
+    assert_eq!(rows(c), vec![31]);
+}
+
+/// Redshifts given in the CMB frame cannot be audited against themselves: the error says
+/// so and names the column.
+#[test]
+fn a_redshift_in_another_frame_is_refused() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("t.csv");
+    write_csv(&path, "glon,glat,z_cmb", &[vec![10.0, 20.0, 0.01]]);
+    let out = Command::cargo_bin("flowsift")
+        .unwrap()
+        .args([
+            "audit",
+            path.to_str().unwrap(),
+            "--sky-frame",
+            "galactic",
+            "--z-column",
+            "z_cmb",
+            "--z-frame",
+            "cmb",
+        ])
+        .output()
+        .unwrap();
+    assert!(!out.status.success());
+    let err = String::from_utf8_lossy(&out.stderr);
+    assert!(
+        err.contains("'z_cmb'") && err.contains("heliocentric"),
+        "{err}"
+    );
+}
