@@ -453,3 +453,46 @@ fn a_redshift_in_another_frame_is_refused() {
         "{err}"
     );
 }
+
+/// A Local-Group cz made additively with an apex flowsift does not build in (Yahil, Tammann
+/// & Sandage 1977: 308 km/s towards l = 105°, b = −7°; reference from memory): without an
+/// apex file the audit says the fitted apex and returns those numbers; with the apex file
+/// that lists it, it names it.
+#[test]
+fn local_group_apex_fitted_or_named_from_an_apex_file() {
+    let dir = tempfile::tempdir().unwrap();
+    let path = dir.path().join("lg.csv");
+    let (v, l0, b0) = (308.0, 105.0, -7.0);
+    let mut data: Vec<Vec<f64>> = sky(160)
+        .into_iter()
+        .map(|(l, b, z)| {
+            let cz = C * z;
+            vec![l, b, cz, cz + v * cos_angle(l, b, l0, b0)]
+        })
+        .collect();
+    data[9][3] += 200.0;
+    write_csv(&path, "glon,glat,cz_helio,cz_lg", &data);
+    let r = audit_json(&[path.to_str().unwrap(), "--sky-frame", "galactic"]);
+    let c = column(&r, "cz_lg");
+    assert_eq!(c["best"]["boost"], "legacy-additive", "{c:#}");
+    assert_eq!(c["best"]["local-group"], "fitted", "{c:#}");
+    let f = &c["fitted_apex"];
+    assert!(
+        (f["speed_km_s"].as_f64().unwrap() - v).abs() < 1e-3,
+        "{f:#}"
+    );
+    assert!((f["l_deg"].as_f64().unwrap() - l0).abs() < 1e-4, "{f:#}");
+    assert!((f["b_deg"].as_f64().unwrap() - b0).abs() < 1e-4, "{f:#}");
+    assert_eq!(rows(c), vec![10]);
+    let apices = Path::new(env!("CARGO_MANIFEST_DIR")).join("demo-data/apices.example.toml");
+    let r = audit_json(&[
+        path.to_str().unwrap(),
+        "--sky-frame",
+        "galactic",
+        "--apex-file",
+        apices.to_str().unwrap(),
+    ]);
+    let c = column(&r, "cz_lg");
+    assert_eq!(c["best"]["local-group"], "yahil1977", "{c:#}");
+    assert_eq!(rows(c), vec![10]);
+}
