@@ -46,6 +46,7 @@
 //! ## Layout (data flow)
 //! * [`physics`] — pure functions: sky frames, rest frames, redshifts, cosmology, estimators.
 
+pub mod audit;
 pub mod catalogue;
 pub mod flow;
 pub mod mock;

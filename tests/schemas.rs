@@ -70,3 +70,11 @@ fn covariance_sidecar_schema_is_current() {
         schemars::schema_for!(CovarianceSidecar),
     );
 }
+
+#[test]
+fn audit_schema_is_current() {
+    check(
+        "audit.schema.json",
+        schemars::schema_for!(flowsift::run::audit::AuditReport),
+    );
+}

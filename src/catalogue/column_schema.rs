@@ -299,6 +299,34 @@ pub const CORRECTION: [ColumnSpec; 6] = [
     ),
 ];
 
+/// The columns `audit -o` writes: one residual column per audited column (`audit_<column>`,
+/// its metadata from [`audit_residual_meta`]) and the row's verdict.
+pub const AUDIT: [ColumnSpec; 2] = [
+    col(
+        "audit_residual",
+        UnitOf::RunLength,
+        "stat.fit.residual",
+        "the audited column minus its best recomputation",
+    ),
+    col(
+        "audit_flag",
+        UnitOf::None,
+        "meta.code.qual",
+        "ok (every audited column reproduced by its best convention), COLUMN:other (another candidate reproduces it), COLUMN:unexplained (none does), not_audited; several separated by ';'",
+    ),
+];
+
+/// The metadata of `audit_<column>`: the residual in the column's unit (`unit`, empty when
+/// dimensionless), described with the candidate it is measured from.
+pub fn audit_residual_meta(column: &str, unit: &str, best: &str) -> ColumnMeta {
+    let mut m = AUDIT[0].meta(unit);
+    if unit.is_empty() {
+        m.unit = None;
+    }
+    m.description = Some(format!("{column} minus its best recomputation ({best})"));
+    m
+}
+
 /// The spec of a column flowsift writes.
 pub fn spec(name: &str) -> Option<&'static ColumnSpec> {
     DERIVED
@@ -308,6 +336,7 @@ pub fn spec(name: &str) -> Option<&'static ColumnSpec> {
         .chain(GROUP_TABLE.iter())
         .chain(CORRECTION.iter())
         .chain(std::iter::once(&GIVEN_FRAME_Z_HELIO))
+        .chain(AUDIT.iter())
         .find(|c| c.name == name)
 }
 

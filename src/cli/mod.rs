@@ -1,5 +1,6 @@
 //! Subcommands, one file each, and the flag groups they share.
 
+mod audit;
 mod config;
 mod correct;
 mod covariance;
@@ -35,6 +36,9 @@ pub enum Command {
     /// A catalogue in, every row out with CMB-frame redshift, cosmological redshift,
     /// peculiar velocity, errors and a status.
     Velocities(Box<velocities::VelocitiesArgs>),
+    /// Which conventions made a catalogue's own derived columns (CMB/LG redshifts, v_pec,
+    /// η, z_cos, distances), and which rows none reproduces.
+    Audit(Box<audit::AuditArgs>),
     /// Run files: a commented example, or their JSON Schema.
     Config(config::ConfigArgs),
     /// Combine group members: error-weighted mean distance, mean redshift, group velocities.
@@ -72,6 +76,7 @@ pub fn run(cli: Cli) -> anyhow::Result<()> {
     match cli.command {
         Command::Galaxy(a) => galaxy::run(*a),
         Command::Velocities(a) => velocities::run(*a),
+        Command::Audit(a) => audit::run(*a),
         Command::Config(a) => config::run(a),
         Command::Mock(a) => mock::run(*a),
         Command::Correct(a) => correct::run(*a),

@@ -4,6 +4,7 @@
 //! work, with every conflict reported at once. The run layer takes only plans.
 
 pub mod apex_file;
+pub mod audit;
 pub mod columns;
 pub mod common;
 pub mod correct;
@@ -16,6 +17,7 @@ pub mod run_file;
 pub mod stage;
 pub mod velocities;
 
+pub use audit::{plan_audit, AuditOrder, AuditPlan};
 pub use columns::{ColumnPlan, Resolved};
 pub use common::Shared;
 pub use correct::{plan_correct, CorrectOrder, CorrectPlan};

@@ -83,8 +83,9 @@ pub fn to_icrs_and_heliocentric(
         "Redshifts were given in the {} frame ('{}'): z_helio was derived by the exact inverse \
          boost of the '{}' apex, which trusts the catalogue's own frame change to have used \
          that apex and an exact boost; if it used another apex or the additive correction, \
-         z_helio and every result inherit the difference (check the catalogue's conventions \
-         before relying on it).",
+         z_helio and every result inherit the difference (where the catalogue also gives \
+         heliocentric redshifts, `flowsift audit` says which apex and boost reproduce its \
+         column).",
         given.z_frame.name(),
         given.z_column,
         apex.name

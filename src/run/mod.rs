@@ -5,6 +5,7 @@
 //! (the edge). The command line and the demo both call this with a
 //! checked [`VelocityPlan`]; it never prints (progress goes through a callback).
 
+pub mod audit;
 pub mod correlated_mock;
 pub mod covariance;
 pub mod demo;
