@@ -25,14 +25,15 @@
 //! Because the kernel is tabulated in real space from the full k integrals (10⁻¹⁰ … 10³
 //! h Mpc⁻¹), nothing is lost above the mesh Nyquist frequency and nothing aliases: the one
 //! approximation is that each object's weight is spread over the eight nearest mesh nodes,
-//! i.e. that Ψ_ab is replaced by its bilinear interpolation in both ends of the pair. The
-//! velocity correlation varies on scales of tens of h⁻¹ Mpc (it is weighted by P(k) dk, not
-//! k² P(k) dk), so for pairs more than a few cells apart the error is of order
-//! (cell/scale)², well below a per cent; the self pairs, where the kernel has its sharpest
-//! peak, are corrected exactly (each object's own mesh term is replaced by
-//! w_im w_jm Ψ1(0)). Pairs within a cell or two keep the interpolation error; their share
-//! of R falls with the number of objects per pair at large separation, which is why small
-//! samples use the exact pair sum ([`MESH_CROSSOVER`]).
+//! i.e. that Ψ_ab is replaced by its bilinear interpolation in both ends of the pair. On
+//! average over the objects' places in their cells that adds (h²/6)∇²Ψ (h the cell side),
+//! so the kernel put on the mesh is Ψ − (h²/6)∇²Ψ (central differences), which leaves an
+//! error of order (h/ℓ)⁴ with ℓ the tens of h⁻¹ Mpc on which the velocity correlation
+//! varies (it is weighted by P(k) dk, not k² P(k) dk). The self pairs, where the kernel has
+//! its sharpest peak, are corrected exactly: each object's own mesh term is replaced by
+//! w_im w_jm Ψ1(0). Pairs within a cell or two keep an interpolation error; their share of
+//! R is small once the sample is large, which is why small samples use the exact pair sum
+//! ([`MESH_CROSSOVER`]). Measured agreement: see [`MESH_MAX_SPACING`].
 //!
 //! Cost: nine forward FFTs of the fields and six of the kernel on (2M)³ points, O(N) for the
 //! assignment and the self correction; memory about eleven complex arrays of (2M)³ values
