@@ -32,12 +32,17 @@
 //! sums are added in a fixed order, so results do not depend on the number of threads.
 
 mod bessel;
+mod fast_window;
 mod quadrature;
 mod spectrum;
 mod velocity_covariance;
 mod window;
 
 pub use bessel::tophat_window;
+pub use fast_window::{
+    lcdm_bulk_flow_covariance_auto, lcdm_bulk_flow_covariance_mesh, mesh_cells_for, WindowMethod,
+    MESH_CELLS_MAX, MESH_CELLS_MIN, MESH_CROSSOVER, MESH_MAX_SPACING, MESH_TARGET_SPACING,
+};
 pub use spectrum::{
     growth_rate, growth_rate_of, tophat_bulk_flow_rms, transfer_eh98, transfer_eh98_no_wiggle,
     LinearPower, PowerParams,

@@ -329,7 +329,7 @@ pub(super) struct SeparationTable {
 }
 
 impl SeparationTable {
-    fn new(power: &LinearPower, a_max: f64) -> SeparationTable {
+    pub(super) fn new(power: &LinearPower, a_max: f64) -> SeparationTable {
         SeparationTable::up_to(power, a_max, QUAD_K_MAX)
     }
 
@@ -402,6 +402,13 @@ impl SeparationTable {
     pub(super) fn pair(&self, sep: f64, cos_a: f64, pp_a2: f64) -> f64 {
         let s = sep.sqrt();
         cos_a * self.psi1.eval(s) - pp_a2 * self.psi2.eval(s)
+    }
+
+    /// (Ψ1(A), Ψ2(A)) at separation `sep` (h⁻¹ Mpc), (h⁻¹ Mpc)².
+    #[inline(always)]
+    pub(super) fn psi(&self, sep: f64) -> (f64, f64) {
+        let s = sep.sqrt();
+        (self.psi1.eval(s), self.psi2.eval(s))
     }
 
     /// F of an object with itself: Ψ1(0) = (1/3) ∫ P dk.
