@@ -150,6 +150,48 @@ pub fn write_via_file(
     Ok(())
 }
 
+/// An output being written over time (a catalogue written block by block): an open
+/// temporary file beside `path`, moved into place by [`PendingFile::commit`]; dropped
+/// uncommitted (an error on the way), it is removed and the destination left as it was.
+pub struct PendingFile {
+    tmp: tempfile::NamedTempFile,
+    _listed: Listed,
+    path: PathBuf,
+}
+
+impl PendingFile {
+    pub fn create(path: &Path) -> Result<PendingFile, CatalogueError> {
+        let tmp = temporary(path)?;
+        let listed = Listed::new(tmp.path());
+        Ok(PendingFile {
+            tmp,
+            _listed: listed,
+            path: path.to_path_buf(),
+        })
+    }
+
+    pub fn file(&self) -> &File {
+        self.tmp.as_file()
+    }
+
+    /// A writer's message, naming the destination rather than the temporary file.
+    pub fn error(&self, message: String) -> CatalogueError {
+        CatalogueError::write(
+            &self.path,
+            name_destination(message, self.tmp.path(), &self.path),
+        )
+    }
+
+    pub fn commit(self) -> Result<(), CatalogueError> {
+        set_readable(self.tmp.path());
+        let path = self.path;
+        self.tmp
+            .persist(&path)
+            .map_err(|e| not_moved(&path, e.error))?;
+        Ok(())
+    }
+}
+
 /// Write `path` by a writer that creates its file by name (cfitsio, the PNG encoder): `fill`
 /// gets a fresh temporary path that does not exist yet, with the destination's extension.
 pub fn write_via_path(

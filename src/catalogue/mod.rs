@@ -4,6 +4,7 @@
 
 pub mod ascii;
 pub mod atomic;
+pub mod blocks;
 pub mod bulk_flow_file;
 mod cfitsio;
 pub mod clock;
@@ -294,7 +295,8 @@ fn same_file(a: &Path, b: &Path) -> bool {
     }
 }
 
-fn check_destination(path: &Path, options: &WriteOptions) -> Result<(), CatalogueError> {
+/// Refuse an output that is an input, or that exists without `force`.
+pub fn check_destination(path: &Path, options: &WriteOptions) -> Result<(), CatalogueError> {
     if options.protected.iter().any(|p| same_file(p, path)) {
         return Err(CatalogueError::write(
             path,

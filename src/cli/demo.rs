@@ -92,6 +92,7 @@ pub fn run(a: DemoArgs) -> anyhow::Result<()> {
                 out.display()
             ),
             step: "velocities".into(),
+            memory_limit: None,
         })
         .map_err(flowsift::run::RunError::from)
         .and_then(|plan| run_velocities(&plan, &report));

@@ -118,6 +118,11 @@ pub struct VelocitiesArgs {
     /// input (cosmology, rest frame, conventions, columns); the output records both.
     #[arg(long = "override-input-settings")]
     pub override_input_settings: bool,
+    /// Memory the run may use (e.g. 1.5G, 800M; default a quarter of the machine's): a
+    /// catalogue that would take more goes through in blocks of rows (Parquet or FITS in,
+    /// Parquet out, no sample stage). Changes no value written.
+    #[arg(long = "memory-limit", value_name = "SIZE", value_parser = flowsift::plan::velocities::parse_memory_size)]
+    pub memory_limit: Option<u64>,
     /// Print the summary as JSON.
     #[arg(long)]
     pub json: bool,
@@ -195,7 +200,7 @@ impl Progress {
             };
             bar.set_style(
                 ProgressStyle::with_template(
-                    "{prefix:>12} {bar:40} {pos}/{len} rows {elapsed_precise}",
+                    "{prefix:>12} {bar:40} {human_pos}/{human_len} rows {per_sec} {elapsed_precise}",
                 )
                 .expect("template")
                 .progress_chars("=> "),
@@ -235,6 +240,7 @@ pub fn run_with(
         override_input_settings: a.override_input_settings,
         command_line: std::env::args().collect::<Vec<_>>().join(" "),
         step: step.to_string(),
+        memory_limit: a.memory_limit,
     })
     .map_err(|e| anyhow!(e))?;
     // The row count is known only after reading; the bar sizes itself on first use.
@@ -268,6 +274,14 @@ pub fn print_summary(s: &RunSummary, json: bool) -> anyhow::Result<()> {
         println!("monte carlo: {} draws per object", s.monte_carlo_draws);
     }
     println!("wrote {}", s.output.display());
+    if let Some(b) = &s.blocks {
+        println!(
+            "  read, computed and written in {} blocks of {} rows (memory limit {:.1} GiB; values as in one piece)",
+            b.blocks,
+            b.rows_per_block,
+            b.memory_limit as f64 / (1u64 << 30) as f64
+        );
+    }
     if let Some(p) = &s.sidecar {
         println!("wrote {}", p.display());
     }

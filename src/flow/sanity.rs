@@ -72,68 +72,102 @@ pub fn check_sample(
     eta_err: &[f64],
     ok: &[bool],
 ) -> Option<SampleCheck> {
-    let n_rows = v_pec.len();
-    if [v_pec_err.len(), eta.len(), eta_err.len(), ok.len()]
-        .iter()
-        .any(|&len| len != n_rows)
-    {
-        return None;
-    }
-    let rows = || (0..n_rows).filter(|&i| ok[i] && v_pec[i].is_finite());
-    let n = rows().count();
-    let (median_v_pec, robust_scatter_v_pec) = robust(rows().map(|i| v_pec[i]))?;
-    let (median_eta, robust_scatter_eta) =
-        robust(rows().map(|i| eta[i])).unwrap_or((f64::NAN, f64::NAN));
-    let median_v_pec_se = MEDIAN_SE_FACTOR * robust_scatter_v_pec / (n as f64).sqrt();
-    let with_err: Vec<usize> = rows()
-        .filter(|&i| v_pec_err[i].is_finite() && v_pec_err[i] > 0.0)
-        .collect();
-    let share_beyond_3_sigma = if with_err.is_empty() {
-        f64::NAN
-    } else {
-        with_err
+    let mut tally = SampleTally::default();
+    tally.add(v_pec, v_pec_err, eta, eta_err, ok)?;
+    tally.finish()
+}
+
+/// The sample check gathered a block of rows at a time (a catalogue read in blocks): the
+/// values the medians need, and running sums for the rest, added in row order so that the
+/// result is the same, bit for bit, as one [`check_sample`] over all rows. It holds two
+/// numbers (16 bytes) per usable row.
+#[derive(Debug, Clone, Default)]
+pub struct SampleTally {
+    v_pec: Vec<f64>,
+    eta: Vec<f64>,
+    with_err: usize,
+    beyond_3_sigma: usize,
+    sum_w: f64,
+    sum_wx: f64,
+}
+
+impl SampleTally {
+    /// Add the rows of one block; None (and nothing added) when its columns differ in length.
+    pub fn add(
+        &mut self,
+        v_pec: &[f64],
+        v_pec_err: &[f64],
+        eta: &[f64],
+        eta_err: &[f64],
+        ok: &[bool],
+    ) -> Option<()> {
+        let n_rows = v_pec.len();
+        if [v_pec_err.len(), eta.len(), eta_err.len(), ok.len()]
             .iter()
-            .filter(|&&i| v_pec[i].abs() > 3.0 * v_pec_err[i])
-            .count() as f64
-            / with_err.len() as f64
-    };
-    let (mut sw, mut swx) = (0.0, 0.0);
-    for i in rows() {
-        let e = eta_err[i];
-        if eta[i].is_finite() && e.is_finite() && e > 0.0 {
-            sw += 1.0 / (e * e);
-            swx += eta[i] / (e * e);
+            .any(|&len| len != n_rows)
+        {
+            return None;
         }
+        for i in (0..n_rows).filter(|&i| ok[i] && v_pec[i].is_finite()) {
+            self.v_pec.push(v_pec[i]);
+            self.eta.push(eta[i]);
+            if v_pec_err[i].is_finite() && v_pec_err[i] > 0.0 {
+                self.with_err += 1;
+                if v_pec[i].abs() > 3.0 * v_pec_err[i] {
+                    self.beyond_3_sigma += 1;
+                }
+            }
+            let e = eta_err[i];
+            if eta[i].is_finite() && e.is_finite() && e > 0.0 {
+                self.sum_w += 1.0 / (e * e);
+                self.sum_wx += eta[i] / (e * e);
+            }
+        }
+        Some(())
     }
-    let (monopole_eta, monopole_eta_err) = if sw > 0.0 {
-        (swx / sw, 1.0 / sw.sqrt())
-    } else {
-        (f64::NAN, f64::NAN)
-    };
-    let mut warnings = vec![];
-    if median_v_pec.abs() > MEDIAN_LIMIT_SE * median_v_pec_se + MEDIAN_SLACK_KM_S {
-        warnings.push(format!(
-            "the median v_pec is {:+.0} ± {:.0} km/s over {n} objects: peculiar velocities \
-             average near zero, so the distances are very likely misread. Check what the \
-             distance column holds (--distance-kind: mu, dl, dc, da or eta) and its unit \
-             (--length-unit, or the column's unit card: a distance modulus read as a length \
-             gives thousands of km/s), and that H0 (--h0 or --preset) matches the distances' \
-             zero point.",
-            median_v_pec, median_v_pec_se
-        ));
+
+    /// The check over every row added; None when no row was usable.
+    pub fn finish(self) -> Option<SampleCheck> {
+        let n = self.v_pec.len();
+        let (median_v_pec, robust_scatter_v_pec) = robust(self.v_pec.into_iter())?;
+        let (median_eta, robust_scatter_eta) =
+            robust(self.eta.into_iter()).unwrap_or((f64::NAN, f64::NAN));
+        let median_v_pec_se = MEDIAN_SE_FACTOR * robust_scatter_v_pec / (n as f64).sqrt();
+        let share_beyond_3_sigma = if self.with_err == 0 {
+            f64::NAN
+        } else {
+            self.beyond_3_sigma as f64 / self.with_err as f64
+        };
+        let (monopole_eta, monopole_eta_err) = if self.sum_w > 0.0 {
+            (self.sum_wx / self.sum_w, 1.0 / self.sum_w.sqrt())
+        } else {
+            (f64::NAN, f64::NAN)
+        };
+        let mut warnings = vec![];
+        if median_v_pec.abs() > MEDIAN_LIMIT_SE * median_v_pec_se + MEDIAN_SLACK_KM_S {
+            warnings.push(format!(
+                "the median v_pec is {:+.0} ± {:.0} km/s over {n} objects: peculiar velocities \
+                 average near zero, so the distances are very likely misread. Check what the \
+                 distance column holds (--distance-kind: mu, dl, dc, da or eta) and its unit \
+                 (--length-unit, or the column's unit card: a distance modulus read as a length \
+                 gives thousands of km/s), and that H0 (--h0 or --preset) matches the distances' \
+                 zero point.",
+                median_v_pec, median_v_pec_se
+            ));
+        }
+        Some(SampleCheck {
+            n,
+            median_v_pec,
+            median_v_pec_se,
+            robust_scatter_v_pec,
+            median_eta,
+            robust_scatter_eta,
+            share_beyond_3_sigma,
+            monopole_eta,
+            monopole_eta_err,
+            warnings,
+        })
     }
-    Some(SampleCheck {
-        n,
-        median_v_pec,
-        median_v_pec_se,
-        robust_scatter_v_pec,
-        median_eta,
-        robust_scatter_eta,
-        share_beyond_3_sigma,
-        monopole_eta,
-        monopole_eta_err,
-        warnings,
-    })
 }
 
 impl SampleCheck {

@@ -217,6 +217,38 @@ pub(crate) fn check_redshift_unit(
 /// Extract and check the inputs. Errors here are about whole columns (wrong type, a unit
 /// that cannot be right); problems of single rows go into `status`.
 pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'a>, InputError> {
+    extract_with(table, plan, UnitGuard::Check)
+}
+
+/// Whether [`extract_with`] checks that the redshift column's values fit its unit (the cz
+/// guard, on the median of the column): a block of a catalogue read in blocks leaves it to
+/// [`check_redshift_column`] over the whole column, since a block's median is not the
+/// column's.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum UnitGuard {
+    Check,
+    Checked,
+}
+
+/// The raw values of the redshift column (NaN where missing), for the cz guard of a
+/// catalogue read in blocks.
+pub fn redshift_column_values(table: &Table, plan: &ColumnPlan) -> Result<Vec<f64>, InputError> {
+    Ok(read_numbers(table, &plan.z.column, Reading::Number)?
+        .0
+        .into_owned())
+}
+
+/// The cz guard over a whole redshift column gathered by [`redshift_column_values`].
+pub fn check_redshift_column(z: &[f64], plan: &ColumnPlan) -> Result<(), InputError> {
+    check_redshift_unit(z, &plan.z.column, plan.z_unit)
+}
+
+/// As [`extract`], with the cz guard as `guard` says.
+pub fn extract_with<'a>(
+    table: &'a Table,
+    plan: &ColumnPlan,
+    guard: UnitGuard,
+) -> Result<InputColumns<'a>, InputError> {
     let n = table.frame.height();
     let mut status = vec![RowStatus::Ok as u8; n];
     // The columns are read in parallel; errors are reported in this fixed order.
@@ -256,7 +288,9 @@ pub fn extract<'a>(table: &'a Table, plan: &ColumnPlan) -> Result<InputColumns<'
     let (mut z_err, z_err_c) = z_err?;
     let (mut dist_err, dist_err_c) = dist_err?;
 
-    check_redshift_unit(&z, &plan.z.column, plan.z_unit)?;
+    if guard == UnitGuard::Check {
+        check_redshift_unit(&z, &plan.z.column, plan.z_unit)?;
+    }
     if plan.z_unit == RedshiftUnit::Cz {
         z.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);
         z_err.to_mut().iter_mut().for_each(|x| *x /= C_KM_S);

@@ -4,7 +4,8 @@
 //! Reported: median and 16th/84th percentiles of v_pec, and the number of draws that had
 //! no solution.
 //!
-//! Reproducibility: object i draws from its own generator, [`object_rng`]`(seed, i)`, so
+//! Reproducibility: object i (its row in the whole catalogue) draws from its own generator,
+//! [`object_rng`]`(seed, i)`, so
 //! the same seed gives identical output whatever the number of threads. Each draw takes a
 //! normal deviate for the redshift (only when σ_z > 0) and one for the distance, in that
 //! order; with an intrinsic scatter σ_* > 0, one more per draw after all of them, added to
@@ -186,12 +187,17 @@ fn invert(
 /// Chebyshev nodes spanning that object's draws and interpolated (relative accuracy far
 /// below 1e-9, checked at a control point; objects that fail the check, or whose draws
 /// leave the cosmology's range, are done draw by draw with the exact solver).
+///
+/// `first_row` is the index, in the whole catalogue, of the first row of `input` (0 unless
+/// `input` is one block of a catalogue read in blocks): row j draws from
+/// [`object_rng`]`(seed, first_row + j)`, so the draws do not depend on the blocks.
 pub fn run(
     ctx: &ObjectContext<'_>,
     input: &InputColumns,
     status: &[u8],
     draws: usize,
     seed: u64,
+    first_row: u64,
     progress: &(dyn Fn(usize) + Sync),
 ) -> MonteCarlo {
     let n = status.len();
@@ -215,7 +221,7 @@ pub fn run(
                     continue;
                 };
                 let gal = ctx.rotations.icrs_to_galactic.apply(&icrs);
-                let mut rng = object_rng(seed, i as u64);
+                let mut rng = object_rng(seed, first_row + i as u64);
                 let failed = one_object(
                     ctx, input, i, &gal, factor, &bases, draws, &mut rng, &mut d, &mut v,
                 );
@@ -521,7 +527,7 @@ mod tests {
                     error_missing: vec![false; 3],
                 };
                 let draws = 300;
-                let mc = run(&ctx, &input, &input.status, draws, 42, &|_| {});
+                let mc = run(&ctx, &input, &input.status, draws, 42, 0, &|_| {});
                 for i in 0..3 {
                     let mut rng = object_rng(42, i as u64);
                     let gal = ctx.rotations.icrs_to_galactic.apply(

@@ -31,6 +31,8 @@ pub struct VelocityOrder {
     pub command_line: String,
     /// The subcommand: `velocities`, `groups` or `malmquist`.
     pub step: String,
+    /// The memory the run may use, bytes (None: [`default_memory_limit`]).
+    pub memory_limit: Option<u64>,
 }
 
 /// A checked `velocities` run.
@@ -55,6 +57,57 @@ pub struct VelocityPlan {
     /// The input is a partitioned survey (a folder of Parquet files) and the output a dataset
     /// in the same layout (see `catalogue::partitioned`).
     pub partitioned: bool,
+    /// The memory the run may use, bytes: a catalogue that would take more is read,
+    /// computed and written in blocks (`run::streamed`). It changes no value written.
+    pub memory_limit: u64,
+}
+
+/// The share of the machine's memory a run may use unless told otherwise.
+pub const DEFAULT_MEMORY_SHARE: f64 = 0.25;
+
+/// What a run assumes the machine has when its memory cannot be read (8 GiB).
+const ASSUMED_MACHINE_MEMORY: u64 = 8 << 30;
+
+/// A quarter of the machine's memory (`MemTotal` of /proc/meminfo; 8 GiB assumed where it
+/// cannot be read).
+pub fn default_memory_limit() -> u64 {
+    let total = std::fs::read_to_string("/proc/meminfo")
+        .ok()
+        .and_then(|text| {
+            text.lines()
+                .find(|l| l.starts_with("MemTotal:"))
+                .and_then(|l| l.split_whitespace().nth(1))
+                .and_then(|kib| kib.parse::<u64>().ok())
+        })
+        .map(|kib| kib * 1024)
+        .unwrap_or(ASSUMED_MACHINE_MEMORY);
+    (total as f64 * DEFAULT_MEMORY_SHARE) as u64
+}
+
+/// A memory size as typed: a number of bytes with an optional suffix K, M, G or T (powers of
+/// 1024; "B" and "iB" accepted after it), e.g. `1.5G`, `800M`, `2GiB`.
+pub fn parse_memory_size(text: &str) -> Result<u64, String> {
+    let t = text.trim();
+    let upper = t.to_ascii_uppercase();
+    let body = upper
+        .strip_suffix("IB")
+        .or_else(|| upper.strip_suffix('B'))
+        .unwrap_or(&upper);
+    let (number, factor) = match body.chars().last() {
+        Some('K') => (&body[..body.len() - 1], 1u64 << 10),
+        Some('M') => (&body[..body.len() - 1], 1 << 20),
+        Some('G') => (&body[..body.len() - 1], 1 << 30),
+        Some('T') => (&body[..body.len() - 1], 1 << 40),
+        _ => (body, 1),
+    };
+    match number.trim().parse::<f64>() {
+        Ok(x) if x.is_finite() && x > 0.0 && x * (factor as f64) < 1.8e19 => {
+            Ok((x * factor as f64) as u64)
+        }
+        _ => Err(format!(
+            "'{text}' is not a memory size: give bytes with an optional K, M, G or T (e.g. 1.5G)"
+        )),
+    }
 }
 
 impl VelocityPlan {
@@ -249,6 +302,7 @@ pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, super::Plan
         bulk_flow_output,
         export_output,
         partitioned,
+        memory_limit: order.memory_limit.unwrap_or_else(default_memory_limit),
         shared,
     })
 }

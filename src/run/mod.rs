@@ -20,6 +20,7 @@ pub mod hubble_correction;
 pub mod model;
 pub mod sample_stages;
 pub mod standalone;
+pub mod streamed;
 
 use std::path::PathBuf;
 
@@ -36,6 +37,7 @@ use crate::physics::cosmology::Cosmology;
 use crate::physics::estimators::EstimatorOptions;
 use crate::physics::object::ObjectContext;
 use crate::physics::sky::SkyRotations;
+use crate::pipeline::inputs::UnitGuard;
 use crate::pipeline::{self, montecarlo, Derived, InputColumns, RowStatus};
 use crate::plan::columns::resolve_columns;
 use crate::plan::{ColumnPlan, VelocityPlan};
@@ -78,6 +80,9 @@ pub struct RunSummary {
     pub export: Option<(crate::flow::export::ExportSummary, PathBuf)>,
     /// The sample check (median, scatter, monopole; warnings are also in the cautions).
     pub sample_check: Option<crate::flow::sanity::SampleCheck>,
+    /// How the catalogue was read in blocks, when it was ([`streamed`]).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    pub blocks: Option<streamed::BlockReport>,
 }
 
 /// Counts per name, in their order, written as a JSON object (`{"ok": 2990, …}`) rather than
@@ -213,10 +218,19 @@ fn monte_carlo_columns(
     input: &InputColumns<'_>,
     status: &[u8],
     plan: &VelocityPlan,
+    first_row: u64,
     progress: &(dyn Fn(Phase, usize) + Sync),
 ) -> Vec<(String, Vec<f64>, ColumnMeta)> {
     let mc_progress = |k: usize| progress(Phase::MonteCarlo, k);
-    let mc = montecarlo::run(ctx, input, status, plan.draws, plan.seed, &mc_progress);
+    let mc = montecarlo::run(
+        ctx,
+        input,
+        status,
+        plan.draws,
+        plan.seed,
+        first_row,
+        &mc_progress,
+    );
     let col = |name: &str, v: Vec<f64>| (name.to_string(), v, meta_of(name, ""));
     vec![
         col("v_pec_mc_median", mc.median),
@@ -224,6 +238,119 @@ fn monte_carlo_columns(
         col("v_pec_mc_p84", mc.p84),
         col("mc_failed_draws", mc.failed),
     ]
+}
+
+/// The caution of a run on an earlier run's output.
+const EARLIER_RUN_NOTE: &str =
+    "The input is a flowsift output: its derived columns were recomputed.";
+
+/// The input columns, the heliocentric redshifts derived from another frame, the notes.
+type RowInputs<'a> = (InputColumns<'a>, Option<Vec<f64>>, Vec<String>);
+
+/// The input columns of `table` (the whole catalogue or a block of it) in canonical units,
+/// positions in ICRS and redshifts heliocentric; the heliocentric redshifts derived from a
+/// column in another frame (for the output), and what the frame conversion noted.
+fn inputs_of<'a>(
+    table: &'a Table,
+    columns: &ColumnPlan,
+    shared: &crate::plan::Shared,
+    guard: UnitGuard,
+) -> Result<RowInputs<'a>, RunError> {
+    let mut input = pipeline::inputs::extract_with(table, columns, guard)?;
+    let (given_z_helio, frame_notes) = given_frames::to_icrs_and_heliocentric(
+        given_frames::GivenColumns {
+            lon: input.ra_deg.to_mut(),
+            lat: input.dec_deg.to_mut(),
+            z: input.z_helio.to_mut(),
+            z_err: input.z_err.to_mut(),
+            status: &mut input.status,
+        },
+        given_frames::GivenIn {
+            sky_frame: columns.sky_frame,
+            z_frame: columns.z_frame,
+            z_column: &columns.z.column,
+        },
+        shared,
+    )?;
+    Ok((input, given_z_helio, frame_notes))
+}
+
+/// The per-row part of a run, on the whole catalogue or on one block of it.
+struct DerivedRows {
+    derived: Derived,
+    /// Columns beside the derived ones: z_helio from another frame, Malmquist, the
+    /// Watkins–Feldman comparison, Monte Carlo.
+    extra: Vec<(String, Vec<f64>, ColumnMeta)>,
+    /// What the steps noted, in their order.
+    notes: Vec<String>,
+}
+
+/// Malmquist (when asked; it corrects `input.distance`), the derived values, the error
+/// note, the comparison estimator and Monte Carlo, for rows whose first is row `first_row`
+/// of the catalogue.
+fn derive_rows(
+    plan: &VelocityPlan,
+    ctx: &ObjectContext<'_>,
+    columns: &ColumnPlan,
+    input: &mut InputColumns<'_>,
+    given_z_helio: Option<Vec<f64>>,
+    first_row: u64,
+    progress: &(dyn Fn(Phase, usize) + Sync),
+) -> Result<DerivedRows, RunError> {
+    let cfg = plan.config();
+    let mut notes = vec![];
+    let mut extra: Vec<(String, Vec<f64>, ColumnMeta)> = vec![];
+    if let Some(z) = given_z_helio {
+        extra.push(("z_helio".into(), z, meta_of("z_helio", "")));
+    }
+    if let Some(m) = &cfg.malmquist {
+        let (f, corrected, note) = sample_stages::apply_malmquist(input, m, ctx)?;
+        notes.push(note);
+        for (name, v) in [("malmquist_factor", f), ("distance_malmquist", corrected)] {
+            extra.push((name.into(), v, meta_of(name, "")));
+        }
+    }
+    let derive_progress = |k: usize| progress(Phase::Derive, k);
+    let with_wf = cfg.comparisons.watkins_feldman == Some(true);
+    let mut derived = pipeline::derive_with(ctx, input, &derive_progress, with_wf);
+    notes.extend(error_note(columns, plan.shared.sigma_star, &mut derived));
+    if let Some((v, e)) = derived.watkins_feldman.take() {
+        extra.push(("v_pec_wf".into(), v, meta_of("v_pec_wf", "")));
+        extra.push(("v_pec_wf_err".into(), e, meta_of("v_pec_wf_err", "")));
+        notes.push("v_pec_wf: the estimator of Watkins & Feldman (2015, MNRAS 450, 1868), for comparison only; v_pec is the exact estimate.".into());
+    }
+    if plan.draws >= 2 {
+        extra.extend(monte_carlo_columns(
+            ctx,
+            input,
+            &derived.status,
+            plan,
+            first_row,
+            progress,
+        ));
+    }
+    Ok(DerivedRows {
+        derived,
+        extra,
+        notes,
+    })
+}
+
+/// Add the derived rows to the sample check.
+fn tally_rows(tally: &mut crate::flow::sanity::SampleTally, derived: &Derived) {
+    let column = |name: &str| derived.get(name).unwrap_or(&[]);
+    let ok: Vec<bool> = derived
+        .status
+        .iter()
+        .map(|s| *s == RowStatus::Ok as u8)
+        .collect();
+    tally.add(
+        column("v_pec"),
+        column("v_pec_err"),
+        column("eta"),
+        column("eta_err"),
+        &ok,
+    );
 }
 
 /// The record of the run: every setting as used.
@@ -289,15 +416,19 @@ pub struct VelocityResult {
     pub sample_check: Option<crate::flow::sanity::SampleCheck>,
 }
 
-/// Run `velocities` as `plan` says: read at the edge, compute in memory, write at the edge.
+/// Run `velocities` as `plan` says: read at the edge, compute in memory, write at the edge;
+/// a catalogue larger than the plan's memory limit goes through in blocks ([`streamed`]).
 pub fn run_velocities(
     plan: &VelocityPlan,
     progress: &(dyn Fn(Phase, usize) + Sync),
 ) -> Result<RunSummary, RunError> {
-    let (table, source_text, partitions) = read_catalogue(plan)?;
-    let read_notes = crate::catalogue::atomic::leftovers_note(&plan.output)
+    let read_notes: Vec<String> = crate::catalogue::atomic::leftovers_note(&plan.output)
         .into_iter()
         .collect();
+    if let Some(streaming) = streamed::choose(plan)? {
+        return streamed::run(plan, streaming, read_notes, progress);
+    }
+    let (table, source_text, partitions) = read_catalogue(plan)?;
     let result = compute_velocities(plan, table, read_notes, progress)?;
     write_velocities(plan, result, source_text, partitions.as_deref())
 }
@@ -318,22 +449,8 @@ pub fn compute_velocities(
     let (table, replaced) = sample_stages::strip_earlier_run(table);
     let columns = resolve_columns(&table, &cfg.columns, cfg.conventions.length_unit)
         .map_err(|e| where_(e.into()))?;
-    let mut input = pipeline::extract(&table, &columns).map_err(|e| where_(e.into()))?;
-    let (given_z_helio, frame_notes) = given_frames::to_icrs_and_heliocentric(
-        given_frames::GivenColumns {
-            lon: input.ra_deg.to_mut(),
-            lat: input.dec_deg.to_mut(),
-            z: input.z_helio.to_mut(),
-            z_err: input.z_err.to_mut(),
-            status: &mut input.status,
-        },
-        given_frames::GivenIn {
-            sky_frame: columns.sky_frame,
-            z_frame: columns.z_frame,
-            z_column: &columns.z.column,
-        },
-        shared,
-    )?;
+    let (mut input, given_z_helio, frame_notes) =
+        inputs_of(&table, &columns, shared, UnitGuard::Check).map_err(where_)?;
     // Groups combine the members' own distances: keep them when Malmquist changes them.
     let uncorrected_distance =
         (cfg.groups.is_some() && cfg.malmquist.is_some()).then(|| input.distance.clone());
@@ -345,42 +462,14 @@ pub fn compute_velocities(
     notes.extend(frame_notes);
     notes.extend(read_notes);
     if !replaced.is_empty() {
-        notes.push("The input is a flowsift output: its derived columns were recomputed.".into());
+        notes.push(EARLIER_RUN_NOTE.into());
     }
-
-    let mut extra: Vec<(String, Vec<f64>, ColumnMeta)> = vec![];
-    if let Some(z) = given_z_helio {
-        extra.push(("z_helio".into(), z, meta_of("z_helio", "")));
-    }
-    if let Some(m) = &cfg.malmquist {
-        let (f, corrected, note) = sample_stages::apply_malmquist(&mut input, m, &ctx)?;
-        notes.push(note);
-        for (name, v) in [("malmquist_factor", f), ("distance_malmquist", corrected)] {
-            extra.push((name.into(), v, meta_of(name, "")));
-        }
-    }
-
-    let derive_progress = |k: usize| progress(Phase::Derive, k);
-    let with_wf = cfg.comparisons.watkins_feldman == Some(true);
-    let mut derived = pipeline::derive_with(&ctx, &input, &derive_progress, with_wf);
-    notes.extend(error_note(&columns, shared.sigma_star, &mut derived));
+    let rows = derive_rows(plan, &ctx, &columns, &mut input, given_z_helio, 0, progress)?;
+    let (derived, extra) = (rows.derived, rows.extra);
+    notes.extend(rows.notes);
     let counts_map = derived.counts();
     let rows_read = derived.status.len();
     let rows_ok = *counts_map.get(&RowStatus::Ok).unwrap_or(&0);
-    if let Some((v, e)) = derived.watkins_feldman.take() {
-        extra.push(("v_pec_wf".into(), v, meta_of("v_pec_wf", "")));
-        extra.push(("v_pec_wf_err".into(), e, meta_of("v_pec_wf_err", "")));
-        notes.push("v_pec_wf: the estimator of Watkins & Feldman (2015, MNRAS 450, 1868), for comparison only; v_pec is the exact estimate.".into());
-    }
-    if plan.draws >= 2 {
-        extra.extend(monte_carlo_columns(
-            &ctx,
-            &input,
-            &derived.status,
-            plan,
-            progress,
-        ));
-    }
 
     // Groups need the members' inputs (uncorrected distances) and derived redshifts.
     let grouped = match &cfg.groups {
@@ -407,19 +496,9 @@ pub fn compute_velocities(
     };
     drop(input);
     let sample_check = {
-        let column = |name: &str| derived.get(name).unwrap_or(&[]);
-        let ok: Vec<bool> = derived
-            .status
-            .iter()
-            .map(|s| *s == RowStatus::Ok as u8)
-            .collect();
-        crate::flow::sanity::check_sample(
-            column("v_pec"),
-            column("v_pec_err"),
-            column("eta"),
-            column("eta_err"),
-            &ok,
-        )
+        let mut tally = crate::flow::sanity::SampleTally::default();
+        tally_rows(&mut tally, &derived);
+        tally.finish()
     };
     if let Some(c) = &sample_check {
         notes.extend(
@@ -589,5 +668,6 @@ fn write_velocities(
         bulk_flow: bulk_summary,
         export: export_summary,
         sample_check,
+        blocks: None,
     })
 }

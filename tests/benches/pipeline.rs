@@ -78,7 +78,7 @@ fn benches(c: &mut Criterion) {
         if n == 10_000 {
             g.throughput(Throughput::Elements((n * 1000) as u64));
             g.bench_with_input(BenchmarkId::new("monte_carlo_1000_draws", n), &n, |b, _| {
-                b.iter(|| montecarlo::run(&ctx, &input, &input.status, 1000, 7, &|_| {}))
+                b.iter(|| montecarlo::run(&ctx, &input, &input.status, 1000, 7, 0, &|_| {}))
             });
         }
     }

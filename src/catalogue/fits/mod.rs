@@ -90,7 +90,7 @@ mod write;
 
 use cards::{history_lines, provenance_cards, read_provenance_cards};
 use hdu::select_hdu;
-use read::read_table_hdu;
+use read::{read_table_hdu, read_table_rows};
 use write::{prepare_columns, write_table_hdu};
 
 /// `EXTNAME` of the table HDU that [`write_fits`] creates.
@@ -137,6 +137,54 @@ pub fn read_fits(path: &Path, hdu: Option<&str>) -> Result<Table, CatalogueError
     let chosen = select_hdu(&file, hdu).map_err(err)?;
     check_size_against_file(&file, path).map_err(err)?;
     read_table_hdu(&file, &chosen).map_err(err)
+}
+
+/// A FITS binary table opened for reading a block of rows at a time (the HDU chosen as
+/// [`read_fits`] chooses it, the header checked once); each [`FitsBlocks::read`] reads its
+/// rows' bytes only.
+pub struct FitsBlocks {
+    path: std::path::PathBuf,
+    hdu: Option<String>,
+    rows: usize,
+    columns: usize,
+}
+
+impl FitsBlocks {
+    pub fn open(path: &Path, hdu: Option<&str>) -> Result<FitsBlocks, CatalogueError> {
+        let err = |m: String| CatalogueError::read(path, m);
+        let file = FitsHandle::open(path).map_err(err)?;
+        select_hdu(&file, hdu).map_err(err)?;
+        check_size_against_file(&file, path).map_err(err)?;
+        let (columns, rows) = hdu::table_shape(&file)
+            .map_err(|s| err(format!("cannot read the table shape: {}", status_text(s))))?;
+        Ok(FitsBlocks {
+            path: path.to_path_buf(),
+            hdu: hdu.map(str::to_string),
+            rows,
+            columns,
+        })
+    }
+
+    pub fn rows(&self) -> usize {
+        self.rows
+    }
+
+    pub fn columns(&self) -> usize {
+        self.columns
+    }
+
+    /// Rows `start .. start + len`, every column or only those named.
+    pub fn read(
+        &self,
+        start: usize,
+        len: usize,
+        only: Option<&[String]>,
+    ) -> Result<Table, CatalogueError> {
+        let err = |m: String| CatalogueError::read(&self.path, m);
+        let file = FitsHandle::open(&self.path).map_err(err)?;
+        let chosen = select_hdu(&file, self.hdu.as_deref()).map_err(err)?;
+        read_table_rows(&file, &chosen, start, len, only).map_err(err)
+    }
 }
 
 /// The table's size from its header (NAXIS1 bytes per row × NAXIS2 rows) must fit in the

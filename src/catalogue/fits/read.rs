@@ -211,9 +211,23 @@ enum ReadBuffer {
 const FRAME_KEYWORDS: [&str; 3] = ["RADESYS", "EQUINOX", "SPECSYS"];
 
 pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Table, String> {
+    read_table_rows(file, hdu, 0, usize::MAX, None)
+}
+
+/// Rows `first .. first + count` of the table (clipped to its end), every column or only
+/// those named in `only`; row numbers in messages are the table's.
+pub(super) fn read_table_rows(
+    file: &FitsHandle,
+    hdu: &HduSummary,
+    first: usize,
+    count: usize,
+    only: Option<&[String]>,
+) -> Result<Table, String> {
     let here = hdu.label();
-    let (ncols, nrows) = table_shape(file)
+    let (ncols, table_rows) = table_shape(file)
         .map_err(|s| format!("{here}: cannot read the table shape: {}", status_text(s)))?;
+    let first = first.min(table_rows);
+    let nrows = count.min(table_rows - first);
     let key = |k: &str| {
         file.key_text(k)
             .map_err(|s| format!("{here}: cannot read keyword {k}: {}", status_text(s)))
@@ -237,6 +251,17 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
             ));
         }
         let tform = key(&format!("TFORM{number}"))?.unwrap_or_default();
+        if only.is_some_and(|names| !names.contains(&name)) {
+            keep.push(false);
+            layout.push(parse_tform(&tform).and_then(|(r, t)| tform_bytes(r, t)));
+            columns.push(ReadColumn {
+                number,
+                name,
+                kind: ReadKind::Empty(DataType::Null),
+                direct: None,
+            });
+            continue;
+        }
         let kind = match column_kind(file, number)
             .map_err(|s| format!("{here}: column '{name}': {}", status_text(s)))?
         {
@@ -361,7 +386,7 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
             unsafe {
                 sys::ffgtbb(
                     fptr,
-                    (start + 1) as i64,
+                    (first + start + 1) as i64,
                     1,
                     (n * row_bytes) as i64,
                     raw.as_mut_ptr(),
@@ -371,8 +396,8 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
             ok(status).map_err(|s| {
                 format!(
                     "{here}: cannot read rows {}–{}: {}",
-                    start + 1,
-                    start + n,
+                    first + start + 1,
+                    first + start + n,
                     status_text(s)
                 )
             })?;
@@ -388,7 +413,7 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
                 return Err(format!(
                     "{here}: column '{}', row {}: the string is not valid UTF-8 (or ASCII) text",
                     column.name,
-                    row + 1
+                    first + row + 1
                 ));
             }
         }
@@ -398,7 +423,7 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
             }
             let mut status = 0;
             let mut anynul: c_int = 0;
-            let first_row = (start + 1) as i64;
+            let first_row = (first + start + 1) as i64;
             let col = column.number;
             // SAFETY (all arms): open handle on this table; each destination holds at least
             // `n` elements from `start` (string scratch: n cells of width + 1 bytes).
@@ -502,7 +527,7 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
                                         "{here}: column '{}', row {}: the string is not valid \
                                          UTF-8 (or ASCII) text",
                                         column.name,
-                                        start + i + 1
+                                        first + start + i + 1
                                     ))
                                 }
                             }
@@ -520,8 +545,8 @@ pub(super) fn read_table_hdu(file: &FitsHandle, hdu: &HduSummary) -> Result<Tabl
                 return Err(format!(
                     "{here}: column '{}': cannot read rows {}–{}: {why}",
                     column.name,
-                    start + 1,
-                    start + n
+                    first + start + 1,
+                    first + start + n
                 ));
             }
         }
