@@ -385,3 +385,39 @@ fn small_mocks_keep_cholesky_unless_told() {
         assert!(record.contains(word), "{name}: {record}");
     }
 }
+
+/// Every error a user can meet in the correlated-draw settings is said in words naming the
+/// flag.
+#[test]
+fn bad_correlated_settings_are_refused_with_the_flag_named() {
+    let dir = tempfile::tempdir().unwrap();
+    let out = dir.path().join("bad.csv");
+    for (flag, value, words) in [
+        (
+            "--fsigma8",
+            "nan",
+            "--fsigma8 must be a non-negative number",
+        ),
+        (
+            "--correlated-kmax",
+            "0",
+            "--correlated-kmax must lie between",
+        ),
+        ("--correlated-method", "sparse", "invalid value 'sparse'"),
+    ] {
+        let run = flowsift(&[
+            "mock",
+            "-o",
+            s(&out),
+            "--n",
+            "50",
+            "--correlated",
+            flag,
+            value,
+        ]);
+        assert!(!run.status.success());
+        let err = String::from_utf8_lossy(&run.stderr);
+        assert!(err.contains(words), "{flag} {value}: {err}");
+    }
+    assert!(!out.exists());
+}

@@ -132,7 +132,7 @@ pub fn plan_mock(order: MockOrder) -> Result<MockPlan, super::PlanError> {
     })
 }
 
-/// Check fσ8 and the method of a correlated draw of `n` objects and resolve the method
+/// Check fσ8, k_max (the range the `covariance` command takes) and the method of a correlated draw of `n` objects and resolve the method
 /// (Cholesky up to [`CHOLESKY_MAX_OBJECTS`], the random field above).
 fn resolve_correlated(
     choice: CorrelatedChoice,
@@ -141,6 +141,14 @@ fn resolve_correlated(
     if let Some(f) = choice.fsigma8 {
         if !(f.is_finite() && f >= 0.0) {
             return Err(format!("--fsigma8 must be a non-negative number, got {f}").into());
+        }
+    }
+    if let Some(k) = choice.k_max {
+        if !(k.is_finite() && (0.005..=1000.0).contains(&k)) {
+            return Err(format!(
+                "--correlated-kmax must lie between 0.005 and 1000 h/Mpc, got {k}"
+            )
+            .into());
         }
     }
     let method = choice
