@@ -5,6 +5,7 @@ use std::path::PathBuf;
 use anyhow::anyhow;
 use clap::Args;
 
+use flowsift::mock::correlated::{CorrelatedChoice, CorrelatedMethod};
 use flowsift::plan::{plan_mock, MockOrder, MockOverrides};
 use flowsift::settings::{ModelChoice, RunConfig};
 
@@ -89,9 +90,20 @@ pub struct MockArgs {
     #[arg(long = "sky-cut", value_name = "DEG", allow_negative_numbers = true)]
     pub sky_cut: Option<f64>,
     /// Draw the peculiar velocities from the linear ΛCDM covariance of the objects themselves
-    /// (Cholesky factorisation; at most 5000 objects), at the amplitude --fsigma8.
+    /// (Cholesky factorisation up to 5000 objects, a Gaussian random field on a grid above),
+    /// at the amplitude --fsigma8.
     #[arg(long)]
     pub correlated: bool,
+    /// How --correlated draws: cholesky (exact, at most 5000 objects) or field (a Gaussian
+    /// random field on a periodic grid; misses the modes longer than the box). Default:
+    /// cholesky up to 5000 objects, field above.
+    #[arg(
+        long = "correlated-method",
+        value_enum,
+        value_name = "METHOD",
+        requires = "correlated"
+    )]
+    pub correlated_method: Option<CorrelatedMethodArg>,
     /// fσ8 of the correlated velocities (default: Planck 2018 σ8 × Ω_m^0.55 of the cosmology).
     #[arg(long, value_name = "FS8", requires = "correlated")]
     pub fsigma8: Option<f64>,
@@ -107,6 +119,22 @@ pub struct MockArgs {
     /// Replace an existing output.
     #[arg(long)]
     pub force: bool,
+}
+
+/// The values of --correlated-method.
+#[derive(Debug, Clone, Copy, clap::ValueEnum)]
+pub enum CorrelatedMethodArg {
+    Cholesky,
+    Field,
+}
+
+impl CorrelatedMethodArg {
+    fn method(self) -> CorrelatedMethod {
+        match self {
+            CorrelatedMethodArg::Cholesky => CorrelatedMethod::Cholesky,
+            CorrelatedMethodArg::Field => CorrelatedMethod::Field,
+        }
+    }
 }
 
 pub fn run(a: MockArgs) -> anyhow::Result<()> {
@@ -140,25 +168,26 @@ pub fn run(a: MockArgs) -> anyhow::Result<()> {
             conventions: a.conventions.choice(),
             ..Default::default()
         },
+        correlated: a.correlated.then_some(CorrelatedChoice {
+            fsigma8: a.fsigma8,
+            k_max: a.correlated_kmax,
+            method: a.correlated_method.map(CorrelatedMethodArg::method),
+        }),
         force: a.force,
         command_line: std::env::args().collect::<Vec<_>>().join(" "),
     })
     .map_err(|e| anyhow!(e))?;
-    let correlated = a
-        .correlated
-        .then_some(flowsift::run::correlated_mock::CorrelatedChoice {
-            fsigma8: a.fsigma8,
-            k_max: a.correlated_kmax,
-        });
-    let n = flowsift::run::generate::run_mock_with(&plan, correlated.as_ref())
-        .map_err(|e| anyhow!(e))?;
+    let written = flowsift::run::generate::run_mock(&plan).map_err(|e| anyhow!(e))?;
     println!(
-        "wrote {n} objects of '{}' to {}",
+        "wrote {} objects of '{}' to {}",
+        written.objects,
         plan.spec.name,
         a.output.display()
     );
-    if correlated.is_some() {
-        println!("note: velocities drawn from the linear ΛCDM covariance of the objects (fiducial cosmology, linear theory); the mock's record states fσ8, k_max and the jitter used");
+    if let Some(words) = &written.correlated {
+        println!(
+            "note: {words} (fiducial cosmology, linear theory; the mock's record says the same)"
+        );
     }
     Ok(())
 }

@@ -13,11 +13,58 @@ use nalgebra::{DMatrix, DVector};
 use rand::SeedableRng;
 use rand_chacha::ChaCha8Rng;
 use rand_distr::{Distribution, StandardNormal};
+use schemars::JsonSchema;
+use serde::{Deserialize, Serialize};
 
 use crate::physics::power::{radial_velocity_covariance, RadialVelocityCorrelation};
 
 /// The most objects drawn by Cholesky factorisation (N² doubles: 200 MB at 5000).
 pub const CHOLESKY_MAX_OBJECTS: usize = 5000;
+
+/// How correlated velocities are drawn.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, JsonSchema)]
+#[serde(rename_all = "kebab-case")]
+pub enum CorrelatedMethod {
+    /// Cholesky factorisation of the objects' covariance ([`draw_correlated`]): exact, for at
+    /// most [`CHOLESKY_MAX_OBJECTS`] objects.
+    Cholesky,
+    /// A Gaussian random field on a periodic grid read off at the objects
+    /// ([`super::random_field::draw_field`]): any number of objects, missing the modes longer
+    /// than the box and smoothed by the grid.
+    Field,
+}
+
+impl CorrelatedMethod {
+    /// Cholesky up to [`CHOLESKY_MAX_OBJECTS`] objects, the field above.
+    pub fn for_count(n: usize) -> CorrelatedMethod {
+        if n <= CHOLESKY_MAX_OBJECTS {
+            CorrelatedMethod::Cholesky
+        } else {
+            CorrelatedMethod::Field
+        }
+    }
+
+    /// The word used on the command line and in the record.
+    pub fn name(self) -> &'static str {
+        match self {
+            CorrelatedMethod::Cholesky => "cholesky",
+            CorrelatedMethod::Field => "field",
+        }
+    }
+}
+
+/// The settings of a correlated mock, as asked (the record holds them with the method
+/// resolved).
+#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, JsonSchema)]
+pub struct CorrelatedChoice {
+    /// Amplitude of the velocity covariance (default: Planck 2018 σ8 times f = Ω_m^γ of the
+    /// cosmology at z = 0).
+    pub fsigma8: Option<f64>,
+    /// Upper wavenumber of the covariance, h Mpc⁻¹ (default 0.2).
+    pub k_max: Option<f64>,
+    /// How the velocities are drawn (default: [`CorrelatedMethod::for_count`]).
+    pub method: Option<CorrelatedMethod>,
+}
 
 /// The draw and how it was made.
 #[derive(Debug, Clone, PartialEq)]
@@ -39,7 +86,7 @@ pub fn draw_correlated(
     let n = positions.len();
     if n > CHOLESKY_MAX_OBJECTS {
         return Err(format!(
-            "{n} objects: correlated velocities are drawn by Cholesky factorisation for at most {CHOLESKY_MAX_OBJECTS} objects"
+            "{n} objects: correlated velocities are drawn by Cholesky factorisation for at most {CHOLESKY_MAX_OBJECTS} objects (the random-field method takes more)"
         ));
     }
     if !(fsigma8.is_finite() && fsigma8 >= 0.0) {

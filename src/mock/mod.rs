@@ -43,6 +43,7 @@
 //! every mock for a given seed.
 
 pub mod correlated;
+pub mod random_field;
 pub mod table;
 
 use rand::{Rng, SeedableRng};

@@ -4,6 +4,7 @@
 
 use std::path::PathBuf;
 
+use crate::mock::correlated::{CorrelatedChoice, CorrelatedMethod, CHOLESKY_MAX_OBJECTS};
 use crate::mock::{DistanceError, MockSpec, Population};
 use crate::physics::field::FieldAxes;
 use crate::settings::{InfallChoice, LengthUnit, ModelChoice, RunConfig};
@@ -46,6 +47,8 @@ pub struct MockOrder {
     pub model: ModelChoice,
     /// Cosmology, frames, conventions.
     pub flags: RunConfig,
+    /// Velocities drawn from the ΛCDM covariance of the objects (`--correlated`).
+    pub correlated: Option<CorrelatedChoice>,
     pub force: bool,
     pub command_line: String,
 }
@@ -56,6 +59,8 @@ pub struct MockPlan {
     pub output: PathBuf,
     pub spec: MockSpec,
     pub model: ModelChoice,
+    /// The correlated draw, its method resolved for the mock's size.
+    pub correlated: Option<CorrelatedChoice>,
     pub shared: Shared,
     pub force: bool,
     pub command_line: String,
@@ -104,6 +109,10 @@ pub fn plan_mock(order: MockOrder) -> Result<MockPlan, super::PlanError> {
     if let Some(f) = o.distance_error {
         spec.populations = single(DistanceError::Fractional(f));
     }
+    let correlated = order
+        .correlated
+        .map(|c| resolve_correlated(c, spec.n))
+        .transpose()?;
     format_of_output(&order.output)?;
     let mut files = Files::new();
     if let Some(p) = &order.model.field {
@@ -116,9 +125,44 @@ pub fn plan_mock(order: MockOrder) -> Result<MockPlan, super::PlanError> {
         output: order.output,
         spec,
         model: order.model,
+        correlated,
         shared,
         force: order.force,
         command_line: order.command_line,
+    })
+}
+
+/// Check fσ8, k_max (the range the `covariance` command takes) and the method of a correlated draw of `n` objects and resolve the method
+/// (Cholesky up to [`CHOLESKY_MAX_OBJECTS`], the random field above).
+fn resolve_correlated(
+    choice: CorrelatedChoice,
+    n: usize,
+) -> Result<CorrelatedChoice, super::PlanError> {
+    if let Some(f) = choice.fsigma8 {
+        if !(f.is_finite() && f >= 0.0) {
+            return Err(format!("--fsigma8 must be a non-negative number, got {f}").into());
+        }
+    }
+    if let Some(k) = choice.k_max {
+        if !(k.is_finite() && (0.005..=1000.0).contains(&k)) {
+            return Err(format!(
+                "--correlated-kmax must lie between 0.005 and 1000 h/Mpc, got {k}"
+            )
+            .into());
+        }
+    }
+    let method = choice
+        .method
+        .unwrap_or_else(|| CorrelatedMethod::for_count(n));
+    if method == CorrelatedMethod::Cholesky && n > CHOLESKY_MAX_OBJECTS {
+        return Err(format!(
+            "--correlated-method cholesky takes at most {CHOLESKY_MAX_OBJECTS} objects (the covariance is N × N), the mock has {n}; use --correlated-method field or leave the method to the default"
+        )
+        .into());
+    }
+    Ok(CorrelatedChoice {
+        method: Some(method),
+        ..choice
     })
 }
 

@@ -3,10 +3,9 @@
 
 use std::collections::HashMap;
 
-use schemars::JsonSchema;
-use serde::{Deserialize, Serialize};
-
-use crate::mock::correlated::draw_correlated;
+pub use crate::mock::correlated::CorrelatedChoice;
+use crate::mock::correlated::{draw_correlated, CorrelatedMethod, CHOLESKY_MAX_OBJECTS};
+use crate::mock::random_field::{draw_field, field_grid_for};
 use crate::mock::{MockCatalogue, MockSpec};
 use crate::physics::cosmology::Cosmology;
 use crate::physics::power::{largest_distance, RadialVelocityCorrelation, LINEAR_K_MAX};
@@ -15,22 +14,17 @@ use crate::settings::short_number;
 use super::covariance::{checked_k_max, power_for};
 use super::RunError;
 
-/// The settings of a correlated mock.
-#[derive(Debug, Clone, Copy, PartialEq, Serialize, Deserialize, JsonSchema)]
-pub struct CorrelatedChoice {
-    /// Amplitude of the velocity covariance (default: Planck 2018 σ8 times f = Ω_m^γ of the
-    /// cosmology at z = 0).
-    pub fsigma8: Option<f64>,
-    /// Upper wavenumber of the covariance, h Mpc⁻¹ (default 0.2).
-    pub k_max: Option<f64>,
-}
-
 /// The correlated velocity of each object, keyed by the bits of its Galactic unit vector
 /// (the second pass of the generator, which adds them, draws the same directions), with
 /// the words for the record.
 pub struct CorrelatedVelocities {
     by_direction: HashMap<[u64; 3], f64>,
     pub description: String,
+    /// The method used.
+    pub method: CorrelatedMethod,
+    /// For the random field: the fraction of the covariance's one-point variance σ_v² that
+    /// the draw carries.
+    pub captured_fraction: Option<f64>,
 }
 
 impl CorrelatedVelocities {
@@ -64,28 +58,65 @@ pub fn correlated_velocities(
     });
     let corr =
         RadialVelocityCorrelation::new(&power, 1.0, 2.0 * largest_distance(&positions), k_max);
-    let draw = draw_correlated(
-        &corr,
-        &positions,
-        fsigma8,
-        spec.seed ^ 0x636f_7272_656c_6174,
-    )
-    .map_err(RunError::Failed)?;
+    let seed = spec.seed ^ 0x636f_7272_656c_6174;
+    let method = choice
+        .method
+        .unwrap_or_else(|| CorrelatedMethod::for_count(positions.len()));
+    let model_words = format!(
+        "fσ8 = {}, P(k) shape Eisenstein & Hu (1998) for h = {}, Ω_m = {}, Ω_b = {}, n_s = {}, k ≤ {} h/Mpc",
+        short_number(fsigma8),
+        short_number(params.h),
+        short_number(params.omega_m),
+        short_number(params.omega_b),
+        short_number(params.n_s),
+        short_number(k_max),
+    );
+    let (velocities, description, captured_fraction) = match method {
+        CorrelatedMethod::Cholesky => {
+            if positions.len() > CHOLESKY_MAX_OBJECTS {
+                return Err(RunError::Failed(format!(
+                    "--correlated-method cholesky takes at most {CHOLESKY_MAX_OBJECTS} objects, the mock has {}; use --correlated-method field",
+                    positions.len()
+                )));
+            }
+            let draw =
+                draw_correlated(&corr, &positions, fsigma8, seed).map_err(RunError::Failed)?;
+            let words = format!(
+                "Velocities drawn from the linear ΛCDM covariance of the objects' true positions (Górski 1988 kernel) with {model_words}; Cholesky factorisation with a diagonal jitter of {:e} of the variance; the bulk flow and σ_v of the spec are added on top.",
+                draw.jitter
+            );
+            (draw.velocities, words, None)
+        }
+        CorrelatedMethod::Field => {
+            let grid = field_grid_for(largest_distance(&positions), k_max);
+            let draw = draw_field(&power, &positions, fsigma8, k_max, grid, seed)
+                .map_err(RunError::Failed)?;
+            let reference = fsigma8 * fsigma8 * corr.variance();
+            let fraction = if reference > 0.0 {
+                draw.captured_variance / reference
+            } else {
+                1.0
+            };
+            let words = format!(
+                "Velocities drawn as a Gaussian random field of linear ΛCDM (v(k) = i H0 fσ8 δ(k) k/k²) on a periodic grid of {}³ cells of {} h⁻¹ Mpc (box {} h⁻¹ Mpc, observer at a node; {} modes, Nyquist {} h/Mpc), read off at the objects' true positions by trilinear interpolation, with {model_words}; the field carries {:.1} % of the covariance's one-point σ_v² (modes longer than the box are absent and the interpolation smooths), so the velocities are less correlated on the largest scales than the covariance says; the bulk flow and σ_v of the spec are added on top.",
+                draw.grid.cells,
+                short_number(draw.grid.spacing),
+                short_number(draw.grid.side()),
+                draw.modes,
+                short_number(draw.grid.nyquist()),
+                100.0 * fraction
+            );
+            (draw.velocities, words, Some(fraction))
+        }
+    };
     let mut by_direction = HashMap::with_capacity(positions.len());
-    for (n, v) in first_pass.n_galactic.iter().zip(&draw.velocities) {
+    for (n, v) in first_pass.n_galactic.iter().zip(&velocities) {
         by_direction.insert([n[0].to_bits(), n[1].to_bits(), n[2].to_bits()], *v);
     }
     Ok(CorrelatedVelocities {
         by_direction,
-        description: format!(
-            "Velocities drawn from the linear ΛCDM covariance of the objects' true positions (Górski 1988 kernel) with fσ8 = {}, P(k) shape Eisenstein & Hu (1998) for h = {}, Ω_m = {}, Ω_b = {}, n_s = {}, k ≤ {} h/Mpc; Cholesky factorisation with a diagonal jitter of {:e} of the variance; the bulk flow and σ_v of the spec are added on top.",
-            short_number(fsigma8),
-            short_number(params.h),
-            short_number(params.omega_m),
-            short_number(params.omega_b),
-            short_number(params.n_s),
-            short_number(k_max),
-            draw.jitter
-        ),
+        description,
+        method,
+        captured_fraction,
     })
 }

@@ -12,16 +12,19 @@ use crate::plan::{FieldPlan, MockPlan};
 use super::cosmology_reaching;
 use super::model::build_model;
 
-/// Make and write the mock; returns the number of objects.
-pub fn run_mock(plan: &MockPlan) -> Result<usize, super::RunError> {
-    run_mock_with(plan, None)
+/// What `mock` wrote.
+#[derive(Debug, Clone)]
+pub struct MockWritten {
+    /// Objects written.
+    pub objects: usize,
+    /// How correlated velocities were drawn (the words of the record), when they were.
+    pub correlated: Option<String>,
 }
 
-/// As [`run_mock`], with the velocities drawn from the ΛCDM covariance when `correlated`.
-pub fn run_mock_with(
-    plan: &MockPlan,
-    correlated: Option<&super::correlated_mock::CorrelatedChoice>,
-) -> Result<usize, super::RunError> {
+/// Make and write the mock, with the velocities drawn from the ΛCDM covariance when the
+/// plan asks for them.
+pub fn run_mock(plan: &MockPlan) -> Result<MockWritten, super::RunError> {
+    let correlated = plan.correlated.as_ref();
     let params = plan.shared.cosmology.params;
     let cosmology = cosmology_reaching(params, plan.spec.z_max)?;
     let model = build_model(&plan.model, &params)?.map(|m| m.0);
@@ -110,7 +113,10 @@ pub fn run_mock_with(
         },
     )
     .map_err(|e| e.to_string())?;
-    Ok(mock.len())
+    Ok(MockWritten {
+        objects: mock.len(),
+        correlated: drawn.map(|d| d.description),
+    })
 }
 
 /// Sample the analytic model onto the grid and write it; returns the half-width of the grid.

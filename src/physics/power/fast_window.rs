@@ -398,10 +398,11 @@ pub fn lcdm_bulk_flow_covariance_mesh(
     (r, spacing)
 }
 
-/// In-place forward 3-D FFT of a cube of side `m` (element (x, y, z) at (x·m + y)·m + z):
-/// each pass transforms the contiguous axis and rotates the layout (x, y, z) → (y, z, x),
-/// so that after three passes every axis is transformed and the layout is the original.
-fn fft3(data: &mut [Complex<f64>], m: usize, fft: &dyn Fft<f64>) {
+/// In-place 3-D FFT of a cube of side `m` (element (x, y, z) at (x·m + y)·m + z) in the
+/// direction of the 1-D plan `fft` (forward or inverse, unnormalised): each pass transforms
+/// the contiguous axis and rotates the layout (x, y, z) → (y, z, x), so that after three
+/// passes every axis is transformed and the layout is the original.
+pub(crate) fn fft3(data: &mut [Complex<f64>], m: usize, fft: &dyn Fft<f64>) {
     let mut other = vec![Complex::new(0.0, 0.0); data.len()];
     for _ in 0..3 {
         data.par_chunks_mut(m * m)

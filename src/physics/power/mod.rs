@@ -39,6 +39,7 @@ mod velocity_covariance;
 mod window;
 
 pub use bessel::tophat_window;
+pub(crate) use fast_window::fft3;
 pub use fast_window::{
     lcdm_bulk_flow_covariance_auto, lcdm_bulk_flow_covariance_mesh, mesh_cells_for, WindowMethod,
     MESH_CELLS_MAX, MESH_CELLS_MIN, MESH_CROSSOVER, MESH_MAX_SPACING, MESH_TARGET_SPACING,
