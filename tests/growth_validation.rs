@@ -342,6 +342,22 @@ fn growth_fits_sigma_v_and_zero_point_and_bins() {
         b["n_used"].as_u64().unwrap(),
         b["cells"]["cells"].as_u64().unwrap()
     );
+    // The issue spells the quantity `--space`: the same run as `--quantity`.
+    let by = |flag: &str| -> serde_json::Value {
+        let out = flowsift(&[
+            "growth",
+            s(&pv),
+            "--json",
+            flag,
+            "velocity",
+            "--sigma-v",
+            "150",
+        ]);
+        serde_json::from_slice(&out.stdout).unwrap()
+    };
+    let (space, quantity) = (by("--space"), by("--quantity"));
+    assert_eq!(space["fsigma8"], quantity["fsigma8"]);
+    assert_ne!(space["fsigma8"], b["fsigma8"]);
     // Too many objects: refused with a pointer to binning.
     let out = Command::cargo_bin("flowsift")
         .unwrap()

@@ -30,8 +30,15 @@ pub struct GrowthArgs {
     /// Also write the result as JSON, with the run's record, to this file.
     #[arg(short, long, value_name = "JSON")]
     pub output: Option<PathBuf>,
-    /// Quantity of the likelihood: eta (default; its errors are near-Gaussian) or velocity.
-    #[arg(long, value_enum, value_name = "Q", default_value = "eta")]
+    /// Quantity of the likelihood: eta (default; its errors are near-Gaussian) or velocity
+    /// (also spelled `--space`).
+    #[arg(
+        long,
+        visible_alias = "space",
+        value_enum,
+        value_name = "Q",
+        default_value = "eta"
+    )]
     pub quantity: GrowthQuantityArg,
     /// Fix the nonlinear velocity dispersion σ_v, km/s (default: fitted).
     #[arg(long = "sigma-v", value_name = "KM_S", allow_negative_numbers = true)]
