@@ -174,6 +174,115 @@ fn a_catalogue_in_blocks_gives_the_values_of_one_piece() {
     }
 }
 
+/// A partitioned survey larger than the limit goes partition after partition, in blocks,
+/// one output file per partition: the same files (values, statuses, record) as the survey
+/// run in memory, and the same values as the catalogue in one file.
+#[test]
+fn a_partitioned_survey_in_blocks_gives_the_files_of_one_piece() {
+    use flowsift::catalogue::{write_table, Provenance, Table, WriteOptions};
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let mock = d.join("mock.parquet");
+    run_ok(&[
+        "mock",
+        "--scenario",
+        "lantern",
+        "--n",
+        "600000",
+        "--seed",
+        "4",
+        "-o",
+        mock.to_str().unwrap(),
+    ]);
+    let whole = read_table(&mock, &ReadOptions::default()).unwrap();
+    // Partitions smaller than a block, one empty, and two longer than a block.
+    let cuts = [0usize, 1000, 1000, 7000, 300_000, 600_000];
+    let survey = d.join("survey");
+    let part_path = |root: &Path, p: usize| {
+        root.join(if p < 3 { "sky=north" } else { "sky=south" })
+            .join(format!("part-{p}.parquet"))
+    };
+    for p in 0..cuts.len() - 1 {
+        let path = part_path(&survey, p);
+        std::fs::create_dir_all(path.parent().unwrap()).unwrap();
+        let piece = Table {
+            frame: whole.frame.slice(cuts[p] as i64, cuts[p + 1] - cuts[p]),
+            ..whole.clone()
+        };
+        write_table(
+            &path,
+            &piece,
+            &Provenance::default(),
+            &WriteOptions::default(),
+        )
+        .unwrap();
+    }
+    let common = ["--monte-carlo", "10", "--seed", "9"];
+    let run = |input: &Path, out: &Path, limit: Option<&str>| {
+        let mut args = vec![
+            "velocities",
+            input.to_str().unwrap(),
+            "-o",
+            out.to_str().unwrap(),
+        ];
+        args.extend(common);
+        if let Some(l) = limit {
+            args.extend(["--memory-limit", l]);
+        }
+        run_ok(&args)
+    };
+    let (in_memory, in_blocks) = (d.join("mem_out"), d.join("blk_out"));
+    let a = run(&survey, &in_memory, None);
+    assert!(!a.contains("blocks of"), "{a}");
+    let b = run(&survey, &in_blocks, Some("50M"));
+    // 1 + 1 + 2 + 2 blocks (the empty partition has none).
+    assert!(b.contains("in 6 blocks of 262144 rows"), "{b}");
+    let one_file = d.join("one_out.parquet");
+    run(&mock, &one_file, None);
+    let expected = read_table(&one_file, &ReadOptions::default()).unwrap();
+
+    let normalised = |path: &Path| {
+        let mut kv = provenance_of(path);
+        for (_, v) in kv.iter_mut() {
+            *v = v.replace("mem_out", "OUT").replace("blk_out", "OUT");
+        }
+        kv
+    };
+    for p in 0..cuts.len() - 1 {
+        let (m, s) = (part_path(&in_memory, p), part_path(&in_blocks, p));
+        same_tables(&m, &s);
+        assert_eq!(normalised(&m), normalised(&s), "record of part {p}");
+        let got = read_table(&s, &ReadOptions::default()).unwrap();
+        assert_eq!(
+            got.frame.height(),
+            cuts[p + 1] - cuts[p],
+            "rows of part {p}"
+        );
+        for name in ["v_pec", "v_pec_err", "v_pec_mc_median", "status"] {
+            let want = expected
+                .frame
+                .column(name)
+                .unwrap()
+                .slice(cuts[p] as i64, cuts[p + 1] - cuts[p]);
+            assert!(
+                got.frame
+                    .column(name)
+                    .unwrap()
+                    .as_materialized_series()
+                    .equals_missing(want.as_materialized_series()),
+                "{name} of part {p} differs from the one-file run"
+            );
+        }
+    }
+    // No staging folder is left beside the dataset.
+    let left: Vec<_> = std::fs::read_dir(d)
+        .unwrap()
+        .filter_map(|e| e.ok())
+        .filter(|e| e.file_name().to_string_lossy().starts_with('.'))
+        .collect();
+    assert!(left.is_empty(), "{left:?}");
+}
+
 #[test]
 fn memory_sizes_are_read_as_typed() {
     use flowsift::plan::velocities::parse_memory_size;

@@ -11,6 +11,8 @@
 
 use std::path::{Path, PathBuf};
 
+use polars::prelude::Schema;
+
 use super::{
     read_table, write_table, CatalogueError, FoundProvenance, Provenance, ReadOptions, Table,
     WriteOptions,
@@ -83,37 +85,8 @@ pub fn read_partitioned(
         match &mut whole {
             None => whole = Some(t),
             Some(w) => {
+                same_columns(w.frame.schema(), t.frame.schema(), &path)?;
                 let first = w.frame.schema();
-                let this = t.frame.schema();
-                for (name, dtype) in first.iter() {
-                    match this.get(name) {
-                        None => {
-                            return Err(CatalogueError::read(
-                                &path,
-                                format!(
-                                    "column '{name}' of the first partition is missing here; every partition needs the same columns"
-                                ),
-                            ))
-                        }
-                        Some(d) if d != dtype => {
-                            return Err(CatalogueError::read(
-                                &path,
-                                format!(
-                                    "column '{name}' is {d} here but {dtype} in the first partition; every partition needs the same column types"
-                                ),
-                            ))
-                        }
-                        Some(_) => {}
-                    }
-                }
-                if let Some(extra) = this.iter_names().find(|n| first.get(n).is_none()) {
-                    return Err(CatalogueError::read(
-                        &path,
-                        format!(
-                            "column '{extra}' is not in the first partition; every partition needs the same columns"
-                        ),
-                    ));
-                }
                 let aligned = t
                     .frame
                     .select(first.iter_names().cloned())
@@ -128,13 +101,51 @@ pub fn read_partitioned(
     }
     let mut table = whole.ok_or_else(|| CatalogueError::read(dir, "no partitions"))?;
     table.frame.align_chunks_par();
-    table.notes.push(format!(
-        "Read {} as a partitioned survey of {} Parquet files ({} rows).",
-        dir.display(),
-        parts.len(),
-        table.frame.height()
-    ));
+    let note = survey_note(dir, parts.len(), table.frame.height());
+    table.notes.push(note);
     Ok((table, parts))
+}
+
+/// Partitions after the first must have its columns with its types (in any order).
+pub fn same_columns(first: &Schema, this: &Schema, path: &Path) -> Result<(), CatalogueError> {
+    for (name, dtype) in first.iter() {
+        match this.get(name) {
+            None => {
+                return Err(CatalogueError::read(
+                    path,
+                    format!(
+                        "column '{name}' of the first partition is missing here; every partition needs the same columns"
+                    ),
+                ))
+            }
+            Some(d) if d != dtype => {
+                return Err(CatalogueError::read(
+                    path,
+                    format!(
+                        "column '{name}' is {d} here but {dtype} in the first partition; every partition needs the same column types"
+                    ),
+                ))
+            }
+            Some(_) => {}
+        }
+    }
+    if let Some(extra) = this.iter_names().find(|n| first.get(n).is_none()) {
+        return Err(CatalogueError::read(
+            path,
+            format!(
+                "column '{extra}' is not in the first partition; every partition needs the same columns"
+            ),
+        ));
+    }
+    Ok(())
+}
+
+/// The note a run keeps of having read a partitioned survey.
+pub fn survey_note(dir: &Path, files: usize, rows: usize) -> String {
+    format!(
+        "Read {} as a partitioned survey of {files} Parquet files ({rows} rows).",
+        dir.display()
+    )
 }
 
 /// The provenance of a partitioned survey: that of its first partition.
@@ -147,9 +158,7 @@ pub fn read_partitioned_provenance(dir: &Path) -> Result<FoundProvenance, Catalo
 }
 
 /// Write `table` as a dataset under `out_dir`: the rows of each partition, in order, to the
-/// same relative path. The dataset is written into a fresh folder beside `out_dir` and moved
-/// into place when every file is written, so a failed run leaves no half dataset; an existing
-/// `out_dir` is replaced only with `options.force`.
+/// same relative path, through a [`StagedDataset`].
 pub fn write_partitioned(
     out_dir: &Path,
     table: &Table,
@@ -167,12 +176,89 @@ pub fn write_partitioned(
             ),
         ));
     }
-    if out_dir.exists() && !options.force {
-        return Err(CatalogueError::write(
-            out_dir,
-            "the output exists; pass --force to replace it",
-        ));
+    let staged = StagedDataset::create(out_dir, options)?;
+    let mut offset = 0usize;
+    for p in parts {
+        let piece = Table {
+            frame: table.frame.slice(offset as i64, p.rows),
+            meta: table.meta.clone(),
+            notes: vec![],
+            keywords: table.keywords.clone(),
+        };
+        offset += p.rows;
+        write_table(&staged.path_for(&p.relative)?, &piece, provenance, options)?;
     }
+    staged.commit()
+}
+
+/// A dataset being written: its files go into a fresh hidden folder beside the destination,
+/// which is moved into place only when every file is written, so a failed run leaves no half
+/// dataset (the folder is removed when the value is dropped uncommitted). An existing
+/// destination is replaced only with `options.force`.
+pub struct StagedDataset {
+    out_dir: PathBuf,
+    staging: PathBuf,
+    committed: bool,
+}
+
+impl StagedDataset {
+    pub fn create(out_dir: &Path, options: &WriteOptions) -> Result<StagedDataset, CatalogueError> {
+        if out_dir.exists() && !options.force {
+            return Err(CatalogueError::write(
+                out_dir,
+                "the output exists; pass --force to replace it",
+            ));
+        }
+        let staging = beside(out_dir, "partial");
+        if staging.exists() {
+            std::fs::remove_dir_all(&staging)
+                .map_err(|e| CatalogueError::write(&staging, e.to_string()))?;
+        }
+        std::fs::create_dir_all(&staging)
+            .map_err(|e| CatalogueError::write(&staging, e.to_string()))?;
+        Ok(StagedDataset {
+            out_dir: out_dir.to_path_buf(),
+            staging,
+            committed: false,
+        })
+    }
+
+    /// Where the partition at `relative` is written (its folders made).
+    pub fn path_for(&self, relative: &Path) -> Result<PathBuf, CatalogueError> {
+        let path = self.staging.join(relative);
+        if let Some(d) = path.parent() {
+            std::fs::create_dir_all(d).map_err(|e| CatalogueError::write(d, e.to_string()))?;
+        }
+        Ok(path)
+    }
+
+    /// Move the written dataset into place (replacing an existing one).
+    pub fn commit(mut self) -> Result<(), CatalogueError> {
+        let out_dir = self.out_dir.clone();
+        let moved = |e: std::io::Error| CatalogueError::write(&out_dir, e.to_string());
+        if out_dir.exists() {
+            let old = beside(&out_dir, "replaced");
+            std::fs::rename(&out_dir, &old).map_err(moved)?;
+            std::fs::rename(&self.staging, &out_dir).map_err(moved)?;
+            let _ = std::fs::remove_dir_all(&old);
+        } else {
+            std::fs::rename(&self.staging, &out_dir).map_err(moved)?;
+        }
+        self.committed = true;
+        Ok(())
+    }
+}
+
+impl Drop for StagedDataset {
+    fn drop(&mut self) {
+        if !self.committed {
+            let _ = std::fs::remove_dir_all(&self.staging);
+        }
+    }
+}
+
+/// A hidden folder beside `out_dir`, named for this process and `what`.
+fn beside(out_dir: &Path, what: &str) -> PathBuf {
     let parent = match out_dir.parent() {
         Some(p) if !p.as_os_str().is_empty() => p.to_path_buf(),
         _ => PathBuf::from("."),
@@ -181,45 +267,7 @@ pub fn write_partitioned(
         .file_name()
         .map(|n| n.to_string_lossy().to_string())
         .unwrap_or_else(|| "dataset".into());
-    let staging = parent.join(format!(".{name}.partial-{}", std::process::id()));
-    if staging.exists() {
-        std::fs::remove_dir_all(&staging)
-            .map_err(|e| CatalogueError::write(&staging, e.to_string()))?;
-    }
-    let result = (|| {
-        let mut offset = 0usize;
-        for p in parts {
-            let piece = Table {
-                frame: table.frame.slice(offset as i64, p.rows),
-                meta: table.meta.clone(),
-                notes: vec![],
-                keywords: table.keywords.clone(),
-            };
-            offset += p.rows;
-            let path = staging.join(&p.relative);
-            if let Some(d) = path.parent() {
-                std::fs::create_dir_all(d).map_err(|e| CatalogueError::write(d, e.to_string()))?;
-            }
-            write_table(&path, &piece, provenance, options)?;
-        }
-        Ok(())
-    })();
-    if let Err(e) = result {
-        let _ = std::fs::remove_dir_all(&staging);
-        return Err(e);
-    }
-    if out_dir.exists() {
-        let old = parent.join(format!(".{name}.replaced-{}", std::process::id()));
-        std::fs::rename(out_dir, &old)
-            .map_err(|e| CatalogueError::write(out_dir, e.to_string()))?;
-        std::fs::rename(&staging, out_dir)
-            .map_err(|e| CatalogueError::write(out_dir, e.to_string()))?;
-        let _ = std::fs::remove_dir_all(&old);
-    } else {
-        std::fs::rename(&staging, out_dir)
-            .map_err(|e| CatalogueError::write(out_dir, e.to_string()))?;
-    }
-    Ok(())
+    parent.join(format!(".{name}.{what}-{}", std::process::id()))
 }
 
 #[cfg(test)]

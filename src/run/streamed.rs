@@ -10,9 +10,15 @@
 //! check is gathered block by block ([`SampleTally`]). The values written are those of a
 //! run in memory, row for row; only the Parquet row groups follow the blocks.
 //!
+//! A partitioned survey goes the same way, partition after partition, each written to its
+//! own file of the output dataset ([`StagedDataset`]); a row's place in the whole survey
+//! seeds its draws, as in memory.
+//!
 //! Runs with a stage that needs the whole sample at once (groups, outliers, bulk flow,
-//! export, Malmquist's summary), partitioned surveys, and other input or output formats
-//! are run in memory ([`super::run_velocities`] decides).
+//! export, Malmquist's summary) and other input or output formats are run in memory
+//! ([`super::run_velocities`] decides).
+
+use std::path::PathBuf;
 
 use serde::Serialize;
 
@@ -22,7 +28,8 @@ use super::{
 };
 use crate::catalogue::atomic::PendingFile;
 use crate::catalogue::blocks::{writes_in_blocks, BlockSource};
-use crate::catalogue::parquet::{ParquetBlockWriter, ROW_GROUP_ROWS};
+use crate::catalogue::parquet::{ParquetBlockWriter, ParquetBlocks, ROW_GROUP_ROWS};
+use crate::catalogue::partitioned::{partition_files, same_columns, survey_note, StagedDataset};
 use crate::catalogue::record::RowCounts;
 use crate::catalogue::{check_destination, storable, Format, ReadOptions, WriteOptions};
 use crate::flow::sanity::SampleTally;
@@ -69,9 +76,17 @@ pub fn block_rows_for(limit: u64, rows: usize, columns: usize) -> usize {
     fit.clamp(ROW_GROUP_ROWS, MAX_BLOCK_ROWS)
 }
 
-/// A run that will go in blocks: the catalogue opened, the rows per block.
-pub struct Streaming {
+/// One file read in blocks: the catalogue, or one partition of a survey.
+struct Piece {
     source: BlockSource,
+    /// The partition's path relative to the survey folder (None: a single catalogue).
+    relative: Option<PathBuf>,
+}
+
+/// A run that will go in blocks: the catalogue opened (one piece, or a survey's partitions
+/// in their order), the rows per block.
+pub struct Streaming {
+    pieces: Vec<Piece>,
     block_rows: usize,
 }
 
@@ -84,20 +99,64 @@ pub fn choose(plan: &VelocityPlan) -> Result<Option<Streaming>, RunError> {
         || cfg.bulk_flow.is_some()
         || cfg.export.is_some()
         || cfg.malmquist.is_some();
-    if plan.partitioned || whole_sample || !writes_in_blocks(plan.output_format) {
+    if whole_sample || !writes_in_blocks(plan.output_format) {
         return Ok(None);
     }
-    let options = ReadOptions {
-        hdu: cfg.input.hdu.clone(),
+    let pieces = if plan.partitioned {
+        let mut pieces = vec![];
+        for relative in partition_files(&plan.input).map_err(|e| e.to_string())? {
+            let source =
+                ParquetBlocks::open(&plan.input.join(&relative)).map_err(|e| e.to_string())?;
+            pieces.push(Piece {
+                source: BlockSource::Parquet(source),
+                relative: Some(relative),
+            });
+        }
+        pieces
+    } else {
+        let options = ReadOptions {
+            hdu: cfg.input.hdu.clone(),
+        };
+        match BlockSource::open(&plan.input, &options).map_err(|e| e.to_string())? {
+            Some(source) => vec![Piece {
+                source,
+                relative: None,
+            }],
+            None => return Ok(None),
+        }
     };
-    let Some(source) = BlockSource::open(&plan.input, &options).map_err(|e| e.to_string())? else {
-        return Ok(None);
-    };
-    if memory_for(source.rows(), source.columns()) <= plan.memory_limit {
+    let rows: usize = pieces.iter().map(|p| p.source.rows()).sum();
+    let columns = pieces[0].source.columns();
+    if memory_for(rows, columns) <= plan.memory_limit {
         return Ok(None);
     }
-    let block_rows = block_rows_for(plan.memory_limit, source.rows(), source.columns());
-    Ok(Some(Streaming { source, block_rows }))
+    let block_rows = block_rows_for(plan.memory_limit, rows, columns);
+    Ok(Some(Streaming { pieces, block_rows }))
+}
+
+/// One block: which piece, where in it, where in the whole catalogue.
+#[derive(Clone, Copy)]
+struct Block {
+    piece: usize,
+    start: usize,
+    global: usize,
+}
+
+fn blocks_of(pieces: &[Piece], block_rows: usize) -> Vec<Block> {
+    let mut blocks = vec![];
+    let mut global = 0;
+    for (piece, p) in pieces.iter().enumerate() {
+        let rows = p.source.rows();
+        for start in (0..rows).step_by(block_rows) {
+            blocks.push(Block {
+                piece,
+                start,
+                global: global + start,
+            });
+        }
+        global += rows;
+    }
+    blocks
 }
 
 /// Run `plan` in blocks (see the [module documentation](self)).
@@ -111,12 +170,54 @@ pub fn run(
     let shared = &plan.shared;
     let where_ = |e: RunError| RunError::in_file(&plan.input, e);
     let read_error = |e: crate::catalogue::CatalogueError| RunError::Failed(e.to_string());
-    let Streaming { source, block_rows } = streaming;
-    let rows = source.rows();
-    let starts: Vec<usize> = (0..rows).step_by(block_rows).collect();
+    let Streaming { pieces, block_rows } = streaming;
+    let rows: usize = pieces.iter().map(|p| p.source.rows()).sum();
+    let blocks = blocks_of(&pieces, block_rows);
+    let read = |b: &Block, columns: Option<&[String]>| {
+        pieces[b.piece]
+            .source
+            .read(b.start, block_rows, columns)
+            .map_err(read_error)
+    };
 
-    let (first, replaced) =
-        sample_stages::strip_earlier_run(source.read(0, block_rows, None).map_err(read_error)?);
+    // What reading the catalogue has to say, as a run in memory says it: the first
+    // partition's notes, the others' under their file's name, the survey's size.
+    let (first, replaced) = sample_stages::strip_earlier_run(read(&blocks[0], None)?);
+    let mut catalogue_notes = first.notes.clone();
+    if plan.partitioned {
+        catalogue_notes.clear();
+        let mut schema = None;
+        for (k, piece) in pieces.iter().enumerate() {
+            let head = piece.source.read(0, 1, None).map_err(read_error)?;
+            let head = sample_stages::strip_earlier_run(head).0;
+            let path = piece
+                .relative
+                .as_ref()
+                .map_or(plan.input.clone(), |r| plan.input.join(r));
+            match &schema {
+                None => schema = Some(head.frame.schema().clone()),
+                Some(first) => {
+                    same_columns(first, head.frame.schema(), &path).map_err(read_error)?
+                }
+            }
+            if k == 0 {
+                catalogue_notes.extend(head.notes.iter().cloned());
+            } else {
+                catalogue_notes.extend(
+                    head.notes
+                        .iter()
+                        .map(|n| format!("{}: {n}", path.display())),
+                );
+            }
+        }
+        catalogue_notes.push(survey_note(&plan.input, pieces.len(), rows));
+    }
+    let column_order: Vec<String> = first
+        .frame
+        .get_column_names()
+        .iter()
+        .map(|n| n.to_string())
+        .collect();
     let columns = resolve_columns(&first, &cfg.columns, cfg.conventions.length_unit)
         .map_err(|e| where_(e.into()))?;
 
@@ -135,10 +236,8 @@ pub fn run(
     .collect();
     let mut z_column = Vec::with_capacity(rows);
     let mut z_top = 0.0_f64;
-    for &start in &starts {
-        let block = source
-            .read(start, block_rows, Some(&used))
-            .map_err(read_error)?;
+    for b in &blocks {
+        let block = read(b, Some(&used))?;
         z_column.extend(redshift_column_values(&block, &columns).map_err(|e| where_(e.into()))?);
         let (input, _, _) =
             inputs_of(&block, &columns, shared, UnitGuard::Checked).map_err(where_)?;
@@ -149,30 +248,47 @@ pub fn run(
     let cosmology = cosmology_reaching(shared.cosmology.params, z_top).map_err(where_)?;
     let ctx = object_context(shared, &cosmology, columns.length_unit);
 
-    // Second pass: each block computed and written.
+    // Second pass: each block computed and written, to the file of its piece.
     let options = WriteOptions {
         force: plan.force,
         protected: plan.inputs().iter().map(|(_, p)| p.to_path_buf()).collect(),
     };
-    check_destination(&plan.output, &options).map_err(|e| e.to_string())?;
-    let pending = PendingFile::create(&plan.output).map_err(|e| e.to_string())?;
-    let mut writer: Option<ParquetBlockWriter<'_>> = None;
+    let staged = if plan.partitioned {
+        Some(StagedDataset::create(&plan.output, &options).map_err(|e| e.to_string())?)
+    } else {
+        check_destination(&plan.output, &options).map_err(|e| e.to_string())?;
+        None
+    };
+    let mut pending = Vec::with_capacity(pieces.len());
+    for piece in &pieces {
+        let path = match (&staged, &piece.relative) {
+            (Some(staged), Some(relative)) => {
+                staged.path_for(relative).map_err(|e| e.to_string())?
+            }
+            _ => plan.output.clone(),
+        };
+        pending.push(PendingFile::create(&path).map_err(|e| e.to_string())?);
+    }
+    // Every file stays open until the end: each one's footer carries the whole run's record.
+    let mut writers: Vec<Option<ParquetBlockWriter<'_>>> = pieces.iter().map(|_| None).collect();
     let mut first = Some(first);
     let mut notes = vec![];
     let mut renamed = vec![];
     let mut left_out = None;
+    let mut no_rows: Option<crate::catalogue::Table> = None;
     let mut counts = std::collections::BTreeMap::<RowStatus, usize>::new();
     let mut tally = SampleTally::default();
-    for &start in &starts {
+    for b in &blocks {
         let mut table = match first.take() {
             Some(t) => t,
-            None => {
-                sample_stages::strip_earlier_run(
-                    source.read(start, block_rows, None).map_err(read_error)?,
-                )
-                .0
-            }
+            None => sample_stages::strip_earlier_run(read(b, None)?).0,
         };
+        if plan.partitioned && b.piece > 0 {
+            table.frame = table
+                .frame
+                .select(column_order.iter().map(|c| c.as_str()))
+                .map_err(|e| RunError::Failed(e.to_string()))?;
+        }
         let (mut input, given_z_helio, frame_notes) =
             inputs_of(&table, &columns, shared, UnitGuard::Checked).map_err(where_)?;
         let derived_rows = derive_rows(
@@ -181,11 +297,11 @@ pub fn run(
             &columns,
             &mut input,
             given_z_helio,
-            start as u64,
+            b.global as u64,
             progress,
         )?;
         drop(input);
-        let table_notes = std::mem::take(&mut table.notes);
+        table.notes.clear();
         let derived_rows_notes = derived_rows.notes;
         for (status, n) in derived_rows.derived.counts() {
             *counts.entry(status).or_insert(0) += n;
@@ -198,9 +314,9 @@ pub fn run(
             columns.length_unit.label(),
         )?;
         drop(table);
-        if writer.is_none() {
+        if b.global == 0 {
             notes = shared.cautions();
-            notes.extend(table_notes.iter().cloned());
+            notes.extend(catalogue_notes.iter().cloned());
             notes.extend(frame_notes);
             notes.extend(read_notes.iter().cloned());
             if !replaced.is_empty() {
@@ -214,14 +330,20 @@ pub fn run(
             Some(prepared) => prepared,
             None => out,
         };
-        if writer.is_none() {
-            writer = Some(
-                ParquetBlockWriter::new(pending.file(), &out)
-                    .map_err(|e| pending.error(e).to_string())?,
+        if no_rows.is_none() {
+            let mut empty = out.clone();
+            empty.frame = out.frame.clear();
+            no_rows = Some(empty);
+        }
+        let file = &pending[b.piece];
+        if writers[b.piece].is_none() {
+            writers[b.piece] = Some(
+                ParquetBlockWriter::new(file.file(), &out)
+                    .map_err(|e| file.error(e).to_string())?,
             );
         }
-        if let Some(w) = writer.as_mut() {
-            w.write(&out).map_err(|e| pending.error(e).to_string())?;
+        if let Some(w) = writers[b.piece].as_mut() {
+            w.write(&out).map_err(|e| file.error(e).to_string())?;
         }
     }
 
@@ -244,11 +366,25 @@ pub fn run(
         },
         &notes,
     );
-    if let Some(w) = writer {
-        w.finish(&record.to_provenance())
-            .map_err(|e| pending.error(e).to_string())?;
+    let provenance = record.to_provenance();
+    for (writer, file) in writers.into_iter().zip(&pending) {
+        let writer = match (writer, &no_rows) {
+            (Some(w), _) => w,
+            // A partition without rows: a file of the run's columns, no rows, the record.
+            (None, Some(empty)) => ParquetBlockWriter::new(file.file(), empty)
+                .map_err(|e| file.error(e).to_string())?,
+            (None, None) => return Err(RunError::Failed("no rows were written".into())),
+        };
+        writer
+            .finish(&provenance)
+            .map_err(|e| file.error(e).to_string())?;
     }
-    pending.commit().map_err(|e| e.to_string())?;
+    for file in pending {
+        file.commit().map_err(|e| e.to_string())?;
+    }
+    if let Some(staged) = staged {
+        staged.commit().map_err(|e| e.to_string())?;
+    }
 
     Ok(RunSummary {
         input: plan.input.clone(),
@@ -271,7 +407,7 @@ pub fn run(
         export: None,
         sample_check,
         blocks: Some(BlockReport {
-            blocks: starts.len(),
+            blocks: blocks.len(),
             rows_per_block: block_rows,
             memory_limit: plan.memory_limit,
         }),
