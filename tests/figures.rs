@@ -467,6 +467,27 @@ fn plot_command_writes_figures_and_report_with_provenance() {
         )) && stderr.contains("missing field"),
         "{stderr}"
     );
+    // A figure that cannot be written (a folder stands in its place): one message naming
+    // the file once, exit 1.
+    let blocked = out.join("sky_galactic.png");
+    std::fs::remove_file(&blocked).unwrap();
+    std::fs::create_dir(&blocked).unwrap();
+    let assert = Command::cargo_bin("flowsift")
+        .unwrap()
+        .args(["plot"])
+        .arg(&input)
+        .arg("--out-dir")
+        .arg(&out)
+        .assert()
+        .failure()
+        .code(1);
+    let stderr = String::from_utf8_lossy(&assert.get_output().stderr).to_string();
+    assert_eq!(
+        stderr.matches(&blocked.display().to_string()).count(),
+        1,
+        "{stderr}"
+    );
+    std::fs::remove_dir(&blocked).unwrap();
     // Bad input: one message, exit 1.
     Command::cargo_bin("flowsift")
         .unwrap()

@@ -52,10 +52,17 @@ impl ReportError {
         }
     }
 
+    /// `error` as the failure of the output at `path`; an error that already names its
+    /// file is kept as it is (one name in the message, not two).
     pub(crate) fn output(path: &std::path::Path, error: ReportError) -> Self {
-        ReportError::Output {
-            path: path.to_path_buf(),
-            error: Box::new(error),
+        match error {
+            e @ (ReportError::Catalogue(_)
+            | ReportError::File { .. }
+            | ReportError::Output { .. }) => e,
+            e => ReportError::Output {
+                path: path.to_path_buf(),
+                error: Box::new(e),
+            },
         }
     }
 
