@@ -25,6 +25,24 @@ fn run_ok(args: &[&str]) -> String {
     String::from_utf8_lossy(&out.stdout).to_string()
 }
 
+/// The invented demo scenario, 600 000 rows (three blocks of the smallest size under a
+/// 50 MB limit), to `path`.
+fn mock_catalogue(path: &Path, seed: &str, extra: &[&str]) {
+    let mut args = vec![
+        "mock",
+        "--scenario",
+        "lantern",
+        "--n",
+        "600000",
+        "--seed",
+        seed,
+        "-o",
+        path.to_str().unwrap(),
+    ];
+    args.extend_from_slice(extra);
+    run_ok(&args);
+}
+
 fn same_tables(a: &Path, b: &Path) {
     let ta = read_table(a, &ReadOptions::default()).unwrap();
     let tb = read_table(b, &ReadOptions::default()).unwrap();
@@ -70,20 +88,7 @@ fn a_catalogue_in_blocks_gives_the_values_of_one_piece() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     let mock = d.join("mock.parquet");
-    // 600 000 rows: three blocks of 262 144 rows (the smallest block) under a 50 MB limit.
-    run_ok(&[
-        "mock",
-        "--scenario",
-        "lantern",
-        "--n",
-        "600000",
-        "--seed",
-        "3",
-        "--outlier-fraction",
-        "0.01",
-        "-o",
-        mock.to_str().unwrap(),
-    ]);
+    mock_catalogue(&mock, "3", &["--outlier-fraction", "0.01"]);
     let whole = d.join("whole.parquet");
     let blocks = d.join("blocks.parquet");
     let common = ["--monte-carlo", "20", "--seed", "5"];
@@ -132,19 +137,7 @@ fn a_catalogue_in_blocks_gives_the_values_of_one_piece() {
     // FITS in, Parquet out, in blocks: the same values again.
     let fits = d.join("mock.fits");
     let from_fits = d.join("from_fits.parquet");
-    run_ok(&[
-        "mock",
-        "--scenario",
-        "lantern",
-        "--n",
-        "600000",
-        "--seed",
-        "3",
-        "--outlier-fraction",
-        "0.01",
-        "-o",
-        fits.to_str().unwrap(),
-    ]);
+    mock_catalogue(&fits, "3", &["--outlier-fraction", "0.01"]);
     let c = run_ok(
         &[
             &[
@@ -183,17 +176,7 @@ fn a_partitioned_survey_in_blocks_gives_the_files_of_one_piece() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
     let mock = d.join("mock.parquet");
-    run_ok(&[
-        "mock",
-        "--scenario",
-        "lantern",
-        "--n",
-        "600000",
-        "--seed",
-        "4",
-        "-o",
-        mock.to_str().unwrap(),
-    ]);
+    mock_catalogue(&mock, "4", &[]);
     let whole = read_table(&mock, &ReadOptions::default()).unwrap();
     // Partitions smaller than a block, one empty, and two longer than a block.
     let cuts = [0usize, 1000, 1000, 7000, 300_000, 600_000];

@@ -214,9 +214,20 @@ pub fn captured_variance(power: &LinearPower, grid: &FieldGrid, k_max: f64) -> f
 }
 
 fn captured_from_table(table: &[f64], grid: &FieldGrid) -> f64 {
+    let smoothing = |k: f64| 2.0 / 3.0 + (k * grid.spacing).cos() / 3.0;
+    let sum = lattice_sum(table, grid, |[kx, ky, kz], p| {
+        let k2 = kx * kx + ky * ky + kz * kz;
+        p / k2 * smoothing(kx) * smoothing(ky) * smoothing(kz)
+    });
+    H0_KM_S_PER_MPC_H * H0_KM_S_PER_MPC_H * sum / (3.0 * grid.side().powi(3))
+}
+
+/// Σ term(k, P) over the grid's modes whose tabulated power `table` is not zero (the zero
+/// mode, the Nyquist planes and modes above k_max have none), summed plane by plane in
+/// parallel and then in plane order, so that the result does not depend on the threads.
+fn lattice_sum(table: &[f64], grid: &FieldGrid, term: impl Fn([f64; 3], f64) -> f64 + Sync) -> f64 {
     let m = grid.cells;
     let kf = grid.fundamental();
-    let smoothing = |k: f64| 2.0 / 3.0 + (k * grid.spacing).cos() / 3.0;
     let partial: Vec<f64> = (0..m)
         .into_par_iter()
         .map(|x| {
@@ -232,20 +243,17 @@ fn captured_from_table(table: &[f64], grid: &FieldGrid) -> f64 {
                     let Some(kz) = wavenumber(z, m, kf) else {
                         continue;
                     };
-                    let n2 = lattice_n2(x, y, z, m);
-                    let p = table[n2];
+                    let p = table[lattice_n2(x, y, z, m)];
                     if p == 0.0 {
                         continue;
                     }
-                    let k2 = kx * kx + ky * ky + kz * kz;
-                    s += p / k2 * smoothing(kx) * smoothing(ky) * smoothing(kz);
+                    s += term([kx, ky, kz], p);
                 }
             }
             s
         })
         .collect();
-    let sum: f64 = partial.iter().sum();
-    H0_KM_S_PER_MPC_H * H0_KM_S_PER_MPC_H * sum / (3.0 * grid.side().powi(3))
+    partial.iter().sum()
 }
 
 /// i² + j² + l² of the signed lattice indices of (x, y, z).
@@ -269,41 +277,16 @@ pub fn field_pair_covariance(
     b: [f64; 3],
 ) -> f64 {
     let table = power_by_index(power, grid, k_max);
-    let m = grid.cells;
-    let kf = grid.fundamental();
     let na = unit(a);
     let nb = unit(b);
     let d = [a[0] - b[0], a[1] - b[1], a[2] - b[2]];
-    let partial: Vec<f64> = (0..m)
-        .into_par_iter()
-        .map(|x| {
-            let mut s = 0.0;
-            let Some(kx) = wavenumber(x, m, kf) else {
-                return 0.0;
-            };
-            for y in 0..m {
-                let Some(ky) = wavenumber(y, m, kf) else {
-                    continue;
-                };
-                for z in 0..m {
-                    let Some(kz) = wavenumber(z, m, kf) else {
-                        continue;
-                    };
-                    let p = table[lattice_n2(x, y, z, m)];
-                    if p == 0.0 {
-                        continue;
-                    }
-                    let k2 = kx * kx + ky * ky + kz * kz;
-                    let pa = na[0] * kx + na[1] * ky + na[2] * kz;
-                    let pb = nb[0] * kx + nb[1] * ky + nb[2] * kz;
-                    let phase = kx * d[0] + ky * d[1] + kz * d[2];
-                    s += p * pa * pb / (k2 * k2) * phase.cos();
-                }
-            }
-            s
-        })
-        .collect();
-    let sum: f64 = partial.iter().sum();
+    let sum = lattice_sum(&table, grid, |[kx, ky, kz], p| {
+        let k2 = kx * kx + ky * ky + kz * kz;
+        let pa = na[0] * kx + na[1] * ky + na[2] * kz;
+        let pb = nb[0] * kx + nb[1] * ky + nb[2] * kz;
+        let phase = kx * d[0] + ky * d[1] + kz * d[2];
+        p * pa * pb / (k2 * k2) * phase.cos()
+    });
     H0_KM_S_PER_MPC_H * H0_KM_S_PER_MPC_H * sum / grid.side().powi(3)
 }
 
