@@ -181,7 +181,7 @@ pub fn run(
             &columns,
             &mut input,
             given_z_helio,
-            start as u64,
+            plan.first_row + start as u64,
             progress,
         )?;
         drop(input);
