@@ -48,6 +48,7 @@
 
 pub mod audit;
 pub mod catalogue;
+pub mod flags;
 pub mod flow;
 pub mod mock;
 pub mod physics;

@@ -2,6 +2,7 @@
 //! and writing them back with units, UCDs, descriptions and provenance. Nothing here does
 //! physics.
 
+pub mod arrow;
 pub mod ascii;
 pub mod atomic;
 pub mod blocks;

@@ -171,7 +171,7 @@ impl ParquetBlocks {
 /// Narrow integers (8 and 16 bits) become 32-bit integers and half-precision floats
 /// single precision, so that every writer and the pipeline see the common types; the
 /// values are unchanged. Returns what was widened, for the run's summary.
-fn widen_narrow(mut frame: DataFrame) -> Result<(DataFrame, Vec<String>), String> {
+pub(crate) fn widen_narrow(mut frame: DataFrame) -> Result<(DataFrame, Vec<String>), String> {
     let mut widened = Vec::new();
     let names: Vec<PlSmallStr> = frame.get_column_names_owned();
     for name in names {
@@ -249,11 +249,40 @@ pub fn write_parquet(file: &File, table: &Table, provenance: &Provenance) -> Res
 /// and astropy's YAML header (what the [module documentation](self) lists). `table` gives
 /// the columns, their types and metadata; its rows do not matter.
 fn key_values(table: &Table, provenance: &Provenance) -> Result<Vec<(String, String)>, String> {
-    let entries: Vec<(String, String)> = provenance
+    let schema = arrow_schema(table, provenance)?;
+    let arrow = polars_parquet::arrow::write::schema_to_metadata_key(&schema);
+    let mut kv = vec![(
+        ARROW_SCHEMA_KEY.to_string(),
+        arrow.value.unwrap_or_default(),
+    )];
+    kv.extend(schema_entries(table, provenance)?);
+    Ok(kv)
+}
+
+/// The provenance as `flowsift.<key>` entries, then astropy's YAML header.
+fn schema_entries(table: &Table, provenance: &Provenance) -> Result<Vec<(String, String)>, String> {
+    let mut entries: Vec<(String, String)> = provenance
         .entries
         .iter()
-        .map(|(k, v)| (format!("flowsift.{k}"), v.clone()))
+        .map(|(k, v)| (format!("{PROVENANCE_PREFIX}{k}"), v.clone()))
         .collect();
+    entries.push((
+        ASTROPY_KEY.to_string(),
+        super::ecsv::table_meta_yaml(table, provenance)?,
+    ));
+    Ok(entries)
+}
+
+/// The prefix of the provenance entries among a schema's metadata.
+pub const PROVENANCE_PREFIX: &str = "flowsift.";
+
+/// The Arrow schema of `table` (polars' newest Arrow types) with each field's `unit`, `ucd`
+/// and `description`, and in the schema metadata the provenance (`flowsift.<key>`) and
+/// astropy's YAML header: the schema a Parquet output stores, and the schema of a table
+/// handed over in memory ([`super::arrow`]). pyarrow (and so astropy) sees the Arrow
+/// schema's metadata when a file has one, the key-value block otherwise: both hold the same
+/// entries.
+pub fn arrow_schema(table: &Table, provenance: &Provenance) -> Result<ArrowSchema, String> {
     let mut schema = table.frame.schema().to_arrow(CompatLevel::newest());
     for field in schema.iter_values_mut() {
         let Some(m) = table.meta.get(field.name.as_str()) else {
@@ -271,25 +300,12 @@ fn key_values(table: &Table, provenance: &Provenance) -> Result<Vec<(String, Str
             }
         }
     }
-    let astropy = super::ecsv::table_meta_yaml(table, provenance)?;
-    // pyarrow (and so astropy) sees the Arrow schema's metadata when the file has one, the
-    // key-value block otherwise: both hold the same entries.
-    for (k, v) in entries
-        .iter()
-        .chain([(ASTROPY_KEY.to_string(), astropy.clone())].iter())
-    {
+    for (k, v) in schema_entries(table, provenance)? {
         schema
             .metadata_mut()
             .insert(k.as_str().into(), v.as_str().into());
     }
-    let arrow = polars_parquet::arrow::write::schema_to_metadata_key(&schema);
-    let mut kv = vec![(
-        ARROW_SCHEMA_KEY.to_string(),
-        arrow.value.unwrap_or_default(),
-    )];
-    kv.extend(entries);
-    kv.push((ASTROPY_KEY.to_string(), astropy));
-    Ok(kv)
+    Ok(schema)
 }
 
 /// Rows per row group of a Parquet output written in blocks (polars' own default for a

@@ -9,7 +9,7 @@ use flowsift::plan::{plan_audit, AuditOrder};
 use flowsift::run::audit::{run_audit, AuditReport};
 use flowsift::settings::{InputChoice, RunConfig};
 
-use super::options::{CosmologyFlags, DistanceFlags, FrameFlags, SkyRedshiftFlags};
+use flowsift::flags::options::{CosmologyFlags, DistanceFlags, FrameFlags, SkyRedshiftFlags};
 
 /// Recompute a catalogue's own derived columns under every convention flowsift knows.
 #[derive(Debug, Args)]

@@ -11,7 +11,7 @@ use flowsift::settings::{
     DensityBoundary, FieldAxes, InfallChoice, InputChoice, LengthUnit, ModelChoice, RunConfig,
 };
 
-use super::options::{ConventionFlags, CosmologyFlags, FrameFlags, SkyRedshiftFlags};
+use flowsift::flags::options::{ConventionFlags, CosmologyFlags, FrameFlags, SkyRedshiftFlags};
 
 /// Correct redshifts for the peculiar velocities a model predicts.
 #[derive(Debug, Args)]
@@ -80,7 +80,7 @@ pub struct ModelFlags {
     #[arg(
         long = "uniform-flow",
         value_name = "VX,VY,VZ",
-        value_parser = super::options::parse_vector3,
+        value_parser = flowsift::flags::options::parse_vector3,
         allow_hyphen_values = true
     )]
     pub uniform_flow: Option<[f64; 3]>,
@@ -96,7 +96,7 @@ pub struct ModelFlags {
     #[arg(
         long,
         value_name = "VX,VY,VZ",
-        value_parser = super::options::parse_vector3,
+        value_parser = flowsift::flags::options::parse_vector3,
         allow_hyphen_values = true
     )]
     pub external: Option<[f64; 3]>,

@@ -11,7 +11,7 @@ use flowsift::run::generate::run_field;
 use flowsift::settings::{InfallChoice, RunConfig};
 
 use super::correct::{AxesArg, UnitArg};
-use super::options::CosmologyFlags;
+use flowsift::flags::options::CosmologyFlags;
 
 /// Sample an analytic velocity model onto a grid file.
 #[derive(Debug, Args)]
@@ -29,7 +29,7 @@ pub struct FieldArgs {
     #[arg(
         long = "uniform-flow",
         value_name = "VX,VY,VZ",
-        value_parser = super::options::parse_vector3,
+        value_parser = flowsift::flags::options::parse_vector3,
         allow_hyphen_values = true
     )]
     pub uniform_flow: Option<[f64; 3]>,

@@ -9,7 +9,7 @@ use serde_json::json;
 use flowsift::plan::Shared;
 use flowsift::settings::{chain_sum, cmb_dipoles, Apex, ChainStep, RunConfig, PRESETS};
 
-use super::options::FrameFlags;
+use flowsift::flags::options::FrameFlags;
 
 /// Show the chain of boosts between rest frames, the apices to choose from, and the cosmology
 /// presets.

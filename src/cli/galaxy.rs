@@ -1,171 +1,27 @@
 //! `flowsift galaxy`: one object from the command line.
 
 use anyhow::anyhow;
-use clap::Args;
-use serde_json::json;
 
-use flowsift::plan::galaxy::{plan_galaxy, GalaxyOrder};
-use flowsift::run::galaxy::{run_galaxy, ChainRedshift};
-use flowsift::settings::{DistanceKind, RunConfig};
+use flowsift::plan::galaxy::plan_galaxy;
+use flowsift::run::galaxy::{galaxy_json, run_galaxy, ChainRedshift};
 
-use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
+pub use flowsift::flags::galaxy::GalaxyArgs;
+
 use super::table::{print_rows, row};
 
-/// One galaxy: position, heliocentric redshift and exactly one distance.
-#[derive(Debug, Args)]
-#[command(group(clap::ArgGroup::new("distance").required(true).multiple(false)))]
-#[command(
-    after_help = "Example:\n  flowsift galaxy --ra 150.1 --dec 2.2 --z-helio 0.0231 --mu 34.85 --mu-err 0.4 --json"
-)]
-pub struct GalaxyArgs {
-    /// Right ascension (ICRS): degrees, or sexagesimal hours like 10:00:24.0.
-    #[arg(long, allow_hyphen_values = true)]
-    pub ra: String,
-    /// Declination (ICRS): degrees, or sexagesimal like -02:12:00.0.
-    #[arg(long, allow_hyphen_values = true)]
-    pub dec: String,
-    /// Heliocentric redshift.
-    #[arg(
-        long = "z-helio",
-        value_name = "Z",
-        allow_negative_numbers = true,
-        required_unless_present = "cz_helio",
-        conflicts_with = "cz_helio"
-    )]
-    pub z_helio: Option<f64>,
-    /// Heliocentric recession velocity c·z, km/s (instead of --z-helio).
-    #[arg(long = "cz-helio", value_name = "KM_S", allow_negative_numbers = true)]
-    pub cz_helio: Option<f64>,
-    /// 1σ error of the heliocentric redshift.
-    #[arg(long = "z-err", value_name = "Z", allow_negative_numbers = true)]
-    pub z_err: Option<f64>,
-    /// Distance modulus μ, mag.
-    #[arg(
-        long,
-        value_name = "MAG",
-        allow_negative_numbers = true,
-        group = "distance"
-    )]
-    pub mu: Option<f64>,
-    /// Luminosity distance (Mpc, or h⁻¹ Mpc with --length-unit mpc-over-h).
-    #[arg(
-        long,
-        value_name = "MPC",
-        allow_negative_numbers = true,
-        group = "distance"
-    )]
-    pub dl: Option<f64>,
-    /// Line-of-sight comoving distance (Mpc, or h⁻¹ Mpc).
-    #[arg(
-        long,
-        value_name = "MPC",
-        allow_negative_numbers = true,
-        group = "distance"
-    )]
-    pub dc: Option<f64>,
-    /// Angular-diameter distance (Mpc, or h⁻¹ Mpc), e.g. from a size-based indicator.
-    #[arg(
-        long,
-        value_name = "MPC",
-        allow_negative_numbers = true,
-        group = "distance"
-    )]
-    pub da: Option<f64>,
-    /// Log-distance ratio η = log10(D_C(z_cmb)/D_C(z_cos)).
-    #[arg(
-        long,
-        value_name = "ETA",
-        allow_negative_numbers = true,
-        group = "distance"
-    )]
-    pub eta: Option<f64>,
-    /// 1σ error of μ, mag.
-    #[arg(
-        long = "mu-err",
-        value_name = "MAG",
-        requires = "mu",
-        allow_negative_numbers = true
-    )]
-    pub mu_err: Option<f64>,
-    /// 1σ error of --dl.
-    #[arg(
-        long = "dl-err",
-        value_name = "MPC",
-        requires = "dl",
-        allow_negative_numbers = true
-    )]
-    pub dl_err: Option<f64>,
-    /// 1σ error of --dc.
-    #[arg(
-        long = "dc-err",
-        value_name = "MPC",
-        requires = "dc",
-        allow_negative_numbers = true
-    )]
-    pub dc_err: Option<f64>,
-    /// 1σ error of --da.
-    #[arg(
-        long = "da-err",
-        value_name = "MPC",
-        requires = "da",
-        allow_negative_numbers = true
-    )]
-    pub da_err: Option<f64>,
-    /// 1σ error of --eta.
-    #[arg(
-        long = "eta-err",
-        value_name = "ETA",
-        requires = "eta",
-        allow_negative_numbers = true
-    )]
-    pub eta_err: Option<f64>,
-    #[command(flatten)]
-    pub cosmology: CosmologyFlags,
-    #[command(flatten)]
-    pub frame: FrameFlags,
-    #[command(flatten)]
-    pub conventions: ConventionFlags,
-    /// Print one JSON object instead of a table.
-    #[arg(long)]
-    pub json: bool,
-}
-
 pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
-    let (kind, value, error) = match (a.mu, a.dl, a.dc, a.da, a.eta) {
-        (Some(v), ..) => (DistanceKind::Mu, v, a.mu_err),
-        (_, Some(v), ..) => (DistanceKind::Dl, v, a.dl_err),
-        (_, _, Some(v), ..) => (DistanceKind::Dc, v, a.dc_err),
-        (_, _, _, Some(v), _) => (DistanceKind::Da, v, a.da_err),
-        (.., Some(v)) => (DistanceKind::Eta, v, a.eta_err),
-        _ => {
-            return Err(anyhow!(
-                "give one distance: --mu, --dl, --dc, --da or --eta"
-            ))
-        }
-    };
-    let plan = plan_galaxy(GalaxyOrder {
-        ra: a.ra.clone(),
-        dec: a.dec.clone(),
-        z_helio: a.z_helio,
-        cz_helio: a.cz_helio,
-        z_err: a.z_err,
-        distance_kind: kind,
-        distance: value,
-        distance_err: error,
-        flags: RunConfig {
-            cosmology: a.cosmology.choice(),
-            frame: a.frame.choice(),
-            conventions: a.conventions.choice(),
-            ..Default::default()
-        },
-    })
-    .map_err(|e| anyhow!(e))?;
+    let plan = plan_galaxy(a.order().map_err(|e| anyhow!(e))?).map_err(|e| anyhow!(e))?;
     let report = run_galaxy(&plan).map_err(|e| anyhow!(e))?;
+    if a.json {
+        println!(
+            "{}",
+            serde_json::to_string_pretty(&galaxy_json(&plan, &report))?
+        );
+        return Ok(());
+    }
     let r = &report.result;
-    let (ra, dec, z_helio) = (plan.ra_deg, plan.dec_deg, plan.z_helio);
+    let (z_helio, kind) = (plan.z_helio, plan.distance_kind);
     let frames = &plan.shared.frames;
-    let cosmo_choice = &plan.shared.cosmology;
-    let convention = plan.shared.convention;
     let length_unit = plan
         .shared
         .config
@@ -176,34 +32,6 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
     let notes = report.cautions.clone();
     let unit = length_unit.label();
 
-    if a.json {
-        let mut obj = json!({
-            "ra": ra, "dec": dec,
-            "glon": r.glon, "glat": r.glat, "sgl": r.sgl, "sgb": r.sgb,
-            "sgx": r.sgx, "sgy": r.sgy, "sgz": r.sgz,
-            "z_helio": z_helio,
-            "z_cmb": r.z_cmb, "z_cos": r.z_cos, "z_pec": r.z_pec,
-            "v_pec": r.v_pec,
-            "d_c": r.d_c, "d_l": r.d_l, "eta": r.eta,
-            "frame_chain": chain_json(&report.chain),
-            "v_pec_low_z": r.v_pec_low_z,
-            "v_pec_watkins_feldman": r.v_pec_watkins_feldman,
-            "distance": {"kind": kind.name(), "value": value, "error": error},
-            "length_unit": unit,
-            "dl_convention": convention.name(),
-            "boost": frames.method.name(),
-            "cosmology": cosmo_choice,
-            "cautions": notes,
-        });
-        if has_errors {
-            let m = obj.as_object_mut().expect("object");
-            m.insert("v_pec_err".into(), json!(r.v_pec_err));
-            m.insert("eta_err".into(), json!(r.eta_err));
-            m.insert("z_cos_err".into(), json!(r.z_cos_err));
-        }
-        println!("{}", serde_json::to_string_pretty(&obj)?);
-        return Ok(());
-    }
     let f = |x: f64, p: usize| format!("{x:.p$}");
     let place = [
         row(
@@ -267,29 +95,6 @@ pub fn run(a: GalaxyArgs) -> anyhow::Result<()> {
         println!("note: {n}");
     }
     Ok(())
-}
-
-/// The chain as JSON: one object per boost, with the redshift once it is applied.
-fn chain_json(chain: &[ChainRedshift]) -> serde_json::Value {
-    serde_json::Value::Array(
-        chain
-            .iter()
-            .map(|c| {
-                json!({
-                    "from": c.step.from,
-                    "to": c.step.to,
-                    "velocity_km_s": c.step.velocity_km_s,
-                    "speed_km_s": c.step.speed_km_s,
-                    "l_deg": c.step.l_deg,
-                    "b_deg": c.step.b_deg,
-                    "cos_theta": c.cos_theta,
-                    "apex": c.step.apex,
-                    "minus_apex": c.step.minus,
-                    "z": c.z,
-                })
-            })
-            .collect(),
-    )
 }
 
 /// One line per boost with the redshift after it, each apex's source below.

@@ -9,7 +9,7 @@ use flowsift::mock::correlated::{CorrelatedChoice, CorrelatedMethod};
 use flowsift::plan::{plan_mock, MockOrder, MockOverrides};
 use flowsift::settings::{ModelChoice, RunConfig};
 
-use super::options::{ConventionFlags, CosmologyFlags, FrameFlags};
+use flowsift::flags::options::{ConventionFlags, CosmologyFlags, FrameFlags};
 
 /// Make a mock catalogue.
 #[derive(Debug, Args)]
@@ -34,7 +34,7 @@ pub struct MockArgs {
     #[arg(
         long = "uniform-flow",
         value_name = "VX,VY,VZ",
-        value_parser = super::options::parse_vector3,
+        value_parser = flowsift::flags::options::parse_vector3,
         allow_hyphen_values = true
     )]
     pub uniform_flow: Option<[f64; 3]>,

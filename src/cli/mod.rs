@@ -12,7 +12,6 @@ mod frames;
 mod galaxy;
 mod growth;
 mod mock;
-mod options;
 mod plot;
 mod sample_stages;
 mod table;

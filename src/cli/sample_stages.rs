@@ -10,8 +10,8 @@ use flowsift::plan::{plan_stage, sibling_path, StageOrder};
 use flowsift::run::standalone::{run_bulkflow, run_export, run_outliers};
 use flowsift::settings::{ExportChoice, GroupChoice, LengthUnit, MalmquistChoice, RunConfig};
 
-use super::options::{BulkFlowFlags, CosmologyFlags, OutlierFlags};
 use super::velocities::{run_with, VelocitiesArgs};
+use flowsift::flags::options::{BulkFlowFlags, CosmologyFlags, OutlierFlags};
 
 /// The stage's order: the input, its output, the flags as a run configuration.
 fn order(

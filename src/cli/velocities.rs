@@ -9,17 +9,10 @@ use anyhow::anyhow;
 use clap::Args;
 use indicatif::{ProgressBar, ProgressStyle};
 
+use flowsift::flags::velocities::VelocityFlags;
 use flowsift::plan::{plan_velocities, VelocityOrder};
 use flowsift::run::{run_velocities, Phase, RunSummary};
-use flowsift::settings::{
-    BulkFlowChoice, ErrorChoice, ExportChoice, GroupChoice, InputChoice, MalmquistChoice,
-    OutlierChoice, RunConfig,
-};
-
-use super::options::{
-    BulkFlowFlags, ConventionFlags, CosmologyFlags, DistanceFlags, FrameFlags, OutlierFlags,
-    SkyRedshiftFlags,
-};
+use flowsift::settings::RunConfig;
 
 const EXAMPLES: &str = "Examples:\n  flowsift velocities survey.fits -o survey_pv.fits\n  flowsift velocities cat.csv -o out.parquet --z-column cz --z-unit cz --distance-column DM --distance-kind mu\n  flowsift velocities cat.csv -o out.csv --config run.toml --monte-carlo 1000 --seed 7";
 
@@ -35,9 +28,6 @@ pub struct VelocitiesArgs {
     /// Output catalogue (format by extension). Never the input; an existing file needs --force.
     #[arg(short, long)]
     pub output: PathBuf,
-    /// Run file (TOML) with any of the settings below; flags override it.
-    #[arg(long, value_name = "RUN.toml")]
-    pub config: Option<PathBuf>,
     /// Replace an existing output.
     #[arg(long)]
     pub force: bool,
@@ -45,79 +35,7 @@ pub struct VelocitiesArgs {
     #[arg(long, value_name = "NAME|INDEX")]
     pub hdu: Option<String>,
     #[command(flatten)]
-    pub columns: SkyRedshiftFlags,
-    #[command(flatten)]
-    pub distance_columns: DistanceFlags,
-    #[command(flatten)]
-    pub cosmology: CosmologyFlags,
-    #[command(flatten)]
-    pub frame: FrameFlags,
-    #[command(flatten)]
-    pub conventions: ConventionFlags,
-    /// Monte Carlo draws per object; adds v_pec_mc_median, v_pec_mc_p16, v_pec_mc_p84.
-    #[arg(
-        long = "monte-carlo",
-        value_name = "N",
-        help_heading = "Errors",
-        allow_negative_numbers = true
-    )]
-    pub monte_carlo: Option<usize>,
-    /// Seed of the Monte Carlo draws (same seed, same output, any thread count).
-    #[arg(
-        long,
-        value_name = "S",
-        help_heading = "Errors",
-        allow_negative_numbers = true
-    )]
-    pub seed: Option<u64>,
-    /// Add v_pec_wf and v_pec_wf_err: the estimator of Watkins & Feldman (2015), for comparison
-    /// with the exact v_pec.
-    #[arg(long = "watkins-feldman", help_heading = "Errors")]
-    pub watkins_feldman: bool,
-    /// Correct distances for homogeneous Malmquist bias before deriving velocities.
-    #[arg(long, help_heading = "Sample stages")]
-    pub malmquist: bool,
-    /// Correct for Malmquist bias with this radial density profile (table with columns r, n).
-    #[arg(
-        long = "malmquist-profile",
-        value_name = "FILE",
-        help_heading = "Sample stages"
-    )]
-    pub malmquist_profile: Option<String>,
-    /// Combine members sharing a group identifier; the group table goes next to the output.
-    #[arg(long, help_heading = "Sample stages")]
-    pub groups: bool,
-    /// Column marking each group's central member (implies --groups).
-    #[arg(
-        long = "central-column",
-        value_name = "NAME",
-        help_heading = "Sample stages"
-    )]
-    pub central_column: Option<String>,
-    /// Where to write the group table (implies --groups).
-    #[arg(
-        long = "groups-out",
-        value_name = "FILE",
-        help_heading = "Sample stages"
-    )]
-    pub groups_out: Option<String>,
-    /// Flag outliers (on the groups when grouping).
-    #[arg(long, help_heading = "Sample stages")]
-    pub outliers: bool,
-    #[command(flatten)]
-    pub outlier_flags: OutlierFlags,
-    /// Fit the bulk flow and write OUTPUT.bulkflow.json.
-    #[arg(long = "bulk-flow", help_heading = "Sample stages")]
-    pub bulk_flow: bool,
-    #[command(flatten)]
-    pub bulk_flow_flags: BulkFlowFlags,
-    /// Write the flow-sample export to this file.
-    #[arg(long, value_name = "FILE", help_heading = "Sample stages")]
-    pub export: Option<String>,
-    /// Use flags or run-file keys that contradict the settings recorded with a flowsift
-    /// input (cosmology, rest frame, conventions, columns); the output records both.
-    #[arg(long = "override-input-settings")]
-    pub override_input_settings: bool,
+    pub flags: VelocityFlags,
     /// Memory the run may use (e.g. 1.5G, 800M; default a quarter of the machine's): a
     /// catalogue that would take more goes through in blocks of rows (Parquet or FITS in,
     /// Parquet out, no sample stage). Changes no value written.
@@ -127,47 +45,10 @@ pub struct VelocitiesArgs {
     #[arg(long)]
     pub json: bool,
 }
-
 impl VelocitiesArgs {
     /// The flags as a run configuration (sections present only where a flag asks for them).
     pub fn flags_config(&self) -> RunConfig {
-        let outlier_choice = self.outlier_flags.choice();
-        let bulk_choice = self.bulk_flow_flags.choice();
-        RunConfig {
-            input: InputChoice {
-                hdu: self.hdu.clone(),
-            },
-            columns: self.distance_columns.add_to(self.columns.choice()),
-            cosmology: self.cosmology.choice(),
-            frame: self.frame.choice(),
-            conventions: self.conventions.choice(),
-            errors: ErrorChoice {
-                monte_carlo: self.monte_carlo,
-                seed: self.seed,
-            },
-            comparisons: flowsift::settings::ComparisonChoice {
-                watkins_feldman: self.watkins_feldman.then_some(true),
-            },
-            malmquist: (self.malmquist || self.malmquist_profile.is_some()).then(|| {
-                MalmquistChoice {
-                    method: None,
-                    profile: self.malmquist_profile.clone(),
-                }
-            }),
-            groups: (self.groups || self.central_column.is_some() || self.groups_out.is_some())
-                .then(|| GroupChoice {
-                    central_column: self.central_column.clone(),
-                    output: self.groups_out.clone(),
-                }),
-            outliers: (self.outliers || outlier_choice != OutlierChoice::default())
-                .then_some(outlier_choice),
-            bulk_flow: (self.bulk_flow || bulk_choice != BulkFlowChoice::default())
-                .then_some(bulk_choice),
-            export: self.export.clone().map(|o| ExportChoice {
-                output: Some(o),
-                keep_outliers: None,
-            }),
-        }
+        self.flags.flags_config(self.hdu.clone())
     }
 }
 
@@ -234,10 +115,10 @@ pub fn run_with(
     let plan = plan_velocities(VelocityOrder {
         input: a.input.clone(),
         output: output.to_path_buf(),
-        run_file: a.config.clone(),
+        run_file: a.flags.config.clone(),
         flags,
         force: a.force,
-        override_input_settings: a.override_input_settings,
+        override_input_settings: a.flags.override_input_settings,
         command_line: std::env::args().collect::<Vec<_>>().join(" "),
         step: step.to_string(),
         memory_limit: a.memory_limit,

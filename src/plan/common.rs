@@ -42,6 +42,17 @@ impl Shared {
             _ => None,
         };
         let name = input.map(|p| p.display().to_string()).unwrap_or_default();
+        Self::resolve_with_record(previous, &name, user, allow_override)
+    }
+
+    /// Settle `user` against `previous`, the record of the input called `name` (a file, or a
+    /// table in memory whose metadata carried it), and resolve.
+    pub fn resolve_with_record(
+        previous: Option<RunRecord>,
+        name: &str,
+        user: &RunConfig,
+        allow_override: bool,
+    ) -> Result<Shared, super::PlanError> {
         let mut user = user.clone();
         user.frame = super::apex_file::with_apex_file(&user.frame)?;
         let user = &user;
@@ -49,7 +60,7 @@ impl Shared {
             config,
             overridden,
             inherited_from,
-        } = settle(previous.as_ref(), user, allow_override, &name)?;
+        } = settle(previous.as_ref(), user, allow_override, name)?;
         let cosmology = config
             .cosmology
             .resolve()

@@ -60,6 +60,10 @@ pub struct VelocityPlan {
     /// The memory the run may use, bytes: a catalogue that would take more is read,
     /// computed and written in blocks (`run::streamed`). It changes no value written.
     pub memory_limit: u64,
+    /// The index, in the whole catalogue, of the input's first row (0 for a file; a piece of
+    /// a catalogue in memory gives its own), so that Monte Carlo draws seeded per row are
+    /// the same whichever piece a row comes in.
+    pub first_row: u64,
 }
 
 /// The share of the machine's memory a run may use unless told otherwise.
@@ -303,6 +307,7 @@ pub fn plan_velocities(order: VelocityOrder) -> Result<VelocityPlan, super::Plan
         export_output,
         partitioned,
         memory_limit: order.memory_limit.unwrap_or_else(default_memory_limit),
+        first_row: 0,
         shared,
     })
 }

@@ -48,3 +48,14 @@ pub fn distance_table(zs: &[f64], shared: &Shared) -> Result<Vec<Distances>, sup
         })
         .collect()
 }
+
+/// The rows as `flowsift distances --json` prints them: one object per redshift.
+pub fn distances_json(rows: &[Distances]) -> serde_json::Value {
+    serde_json::Value::Array(
+        rows.iter()
+            .map(|d| {
+                serde_json::json!({"z": d.z, "d_c": d.d_c, "d_m": d.d_m, "d_l": d.d_l, "d_a": d.d_a, "mu": d.mu})
+            })
+            .collect(),
+    )
+}

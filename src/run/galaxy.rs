@@ -8,6 +8,8 @@ use crate::physics::restframe::ChainStep;
 use crate::physics::sky::{Direction, Icrs};
 use crate::plan::galaxy::GalaxyPlan;
 
+use serde_json::json;
+
 use super::cosmology_reaching;
 
 /// One boost of the chain with the object's redshift once it is applied.
@@ -87,4 +89,71 @@ pub fn run_galaxy(plan: &GalaxyPlan) -> Result<GalaxyReport, super::RunError> {
         chain,
         cautions: shared.cautions(),
     })
+}
+
+/// The object as `flowsift galaxy --json` prints it (and the Python package returns it).
+pub fn galaxy_json(plan: &GalaxyPlan, report: &GalaxyReport) -> serde_json::Value {
+    let r = &report.result;
+    let (ra, dec, z_helio) = (plan.ra_deg, plan.dec_deg, plan.z_helio);
+    let (kind, value, error) = (plan.distance_kind, plan.distance, plan.distance_err);
+    let frames = &plan.shared.frames;
+    let cosmo_choice = &plan.shared.cosmology;
+    let convention = plan.shared.convention;
+    let unit = plan
+        .shared
+        .config
+        .conventions
+        .length_unit
+        .unwrap_or_default()
+        .label();
+    let has_errors = plan.has_errors();
+    let notes = &report.cautions;
+    let mut obj = json!({
+        "ra": ra, "dec": dec,
+        "glon": r.glon, "glat": r.glat, "sgl": r.sgl, "sgb": r.sgb,
+        "sgx": r.sgx, "sgy": r.sgy, "sgz": r.sgz,
+        "z_helio": z_helio,
+        "z_cmb": r.z_cmb, "z_cos": r.z_cos, "z_pec": r.z_pec,
+        "v_pec": r.v_pec,
+        "d_c": r.d_c, "d_l": r.d_l, "eta": r.eta,
+        "frame_chain": chain_json(&report.chain),
+        "v_pec_low_z": r.v_pec_low_z,
+        "v_pec_watkins_feldman": r.v_pec_watkins_feldman,
+        "distance": {"kind": kind.name(), "value": value, "error": error},
+        "length_unit": unit,
+        "dl_convention": convention.name(),
+        "boost": frames.method.name(),
+        "cosmology": cosmo_choice,
+        "cautions": notes,
+    });
+    if has_errors {
+        let m = obj.as_object_mut().expect("object");
+        m.insert("v_pec_err".into(), json!(r.v_pec_err));
+        m.insert("eta_err".into(), json!(r.eta_err));
+        m.insert("z_cos_err".into(), json!(r.z_cos_err));
+    }
+    obj
+}
+
+/// The chain as JSON: one object per boost, with the redshift once it is applied.
+fn chain_json(chain: &[ChainRedshift]) -> serde_json::Value {
+    serde_json::Value::Array(
+        chain
+            .iter()
+            .map(|c| {
+                json!({
+                    "from": c.step.from,
+                    "to": c.step.to,
+                    "velocity_km_s": c.step.velocity_km_s,
+                    "speed_km_s": c.step.speed_km_s,
+                    "l_deg": c.step.l_deg,
+                    "b_deg": c.step.b_deg,
+                    "cos_theta": c.cos_theta,
+                    "apex": c.step.apex,
+                    "minus_apex": c.step.minus,
+                    "z": c.z,
+                })
+            })
+            .collect(),
+    )
 }

@@ -433,6 +433,19 @@ pub fn run_velocities(
     write_velocities(plan, result, source_text, partitions.as_deref())
 }
 
+/// A `velocities` run on a table in memory (planned by
+/// [`crate::plan::plan_velocities_in_memory`]): the output table and the provenance it
+/// carries, the same as the file a run on the same rows would write holds
+/// ([`crate::catalogue::arrow::table_to_arrow`] gives both as Arrow data).
+pub fn velocities_in_memory(
+    plan: &VelocityPlan,
+    table: Table,
+    progress: &(dyn Fn(Phase, usize) + Sync),
+) -> Result<(Table, crate::catalogue::Provenance), RunError> {
+    let result = compute_velocities(plan, table, vec![], progress)?;
+    Ok((result.table, result.record.to_provenance()))
+}
+
 /// The computing part of a `velocities` run on a catalogue already in memory (no file is
 /// read or written): `read_notes` are what the reading side has to say (kept in the
 /// record's cautions in their place).
@@ -464,7 +477,15 @@ pub fn compute_velocities(
     if !replaced.is_empty() {
         notes.push(EARLIER_RUN_NOTE.into());
     }
-    let rows = derive_rows(plan, &ctx, &columns, &mut input, given_z_helio, 0, progress)?;
+    let rows = derive_rows(
+        plan,
+        &ctx,
+        &columns,
+        &mut input,
+        given_z_helio,
+        plan.first_row,
+        progress,
+    )?;
     let (derived, extra) = (rows.derived, rows.extra);
     notes.extend(rows.notes);
     let counts_map = derived.counts();

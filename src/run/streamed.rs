@@ -297,7 +297,7 @@ pub fn run(
             &columns,
             &mut input,
             given_z_helio,
-            b.global as u64,
+            plan.first_row + b.global as u64,
             progress,
         )?;
         drop(input);

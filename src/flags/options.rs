@@ -3,7 +3,7 @@
 
 use clap::{Args, ValueEnum};
 
-use flowsift::settings::{
+use crate::settings::{
     AngleUnit, BoostMethod, ColumnChoice, ConventionChoice, CosmologyChoice, DistanceKind,
     DlConvention, FrameChoice, GivenFrame, InputSkyFrame, LengthUnit, RedshiftUnit,
 };
@@ -463,17 +463,17 @@ pub enum SpaceArg {
 }
 
 impl SpaceArg {
-    pub fn space(self) -> flowsift::settings::FitSpace {
+    pub fn space(self) -> crate::settings::FitSpace {
         match self {
-            SpaceArg::Eta => flowsift::settings::FitSpace::Eta,
-            SpaceArg::Velocity => flowsift::settings::FitSpace::Velocity,
+            SpaceArg::Eta => crate::settings::FitSpace::Eta,
+            SpaceArg::Velocity => crate::settings::FitSpace::Velocity,
         }
     }
 }
 
 impl OutlierFlags {
-    pub fn choice(&self) -> flowsift::settings::OutlierChoice {
-        flowsift::settings::OutlierChoice {
+    pub fn choice(&self) -> crate::settings::OutlierChoice {
+        crate::settings::OutlierChoice {
             threshold: self.threshold,
             neighbours: self.neighbours,
             neighbour_threshold: self.neighbour_threshold,
@@ -543,8 +543,8 @@ pub struct BulkFlowFlags {
 }
 
 impl BulkFlowFlags {
-    pub fn choice(&self) -> flowsift::settings::BulkFlowChoice {
-        flowsift::settings::BulkFlowChoice {
+    pub fn choice(&self) -> crate::settings::BulkFlowChoice {
+        crate::settings::BulkFlowChoice {
             quantity: self.space.map(SpaceArg::space),
             sigma_star: self.sigma_star,
             include_outliers: self.include_outliers.then_some(true),
